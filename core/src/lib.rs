@@ -1,0 +1,64 @@
+//! # flatbin — an OFDM receiver (and small transmitter) for microcontrollers
+//!
+//! `#![no_std]`, no allocation, no panics on the processing path. Every size is a const generic
+//! or a caller-provided buffer; every configuration is validated once, in a constructor that
+//! returns a typed error, and the processing path trusts it afterwards.
+//!
+//! ## Data flow (one OFDM symbol)
+//!
+//! ```text
+//! transmit:  bits → modulation (Gray map) → grid (data + pilots, numerology) → IFFT → + CP
+//! receive:   samples (N + L) → front (strip CP, FFT, unitary scaling) → bins
+//!            → [pilot estimation, equalization: later stages] → demap (hard / max-log LLR)
+//! ```
+//!
+//! * [`numerology`] — FFT size, cyclic prefix, used band, pilot pattern; the rules every layout
+//!   must satisfy, checked once.
+//! * [`pilots`] — the pilot PRBS (seeded, per symbol).
+//! * [`modulation`] — Gray-mapped BPSK … 256-QAM with unit mean energy.
+//! * [`fft`] — the FFT front-end trait and its f32 implementation.
+//! * [`transmit`] — bits to time-domain samples with cyclic prefix.
+//! * [`front`] — cyclic-prefix removal and FFT on the receive side.
+//! * [`demap`] — hard decisions and channel-state-weighted max-log LLRs (f32 and saturated i8).
+//!
+//! ## Conventions
+//!
+//! * Bins are numbered by their *logical* frequency index `k` in `-N/2 ..= N/2 - 1`; the FFT
+//!   buffer stores bin `k` at index `k mod N` (natural FFT order).
+//! * Both transforms are **unitary** (scaled by `1/sqrt(N)`): the energy of a bin equals the
+//!   energy that bin carried at the transmitter, and time-domain noise of variance `σ²` per
+//!   sample appears with variance `σ²` in every bin. Es/N0 per data subcarrier is therefore the
+//!   mean data-symbol energy (1) over the per-sample noise variance.
+//! * LLR sign: `L = ln P(b=0)/P(b=1)`, positive means bit 0.
+//! * Bits are passed one per byte (`0` or `1`).
+
+#![no_std]
+#![deny(missing_docs)]
+#![cfg_attr(
+    not(test),
+    deny(
+        clippy::unwrap_used,
+        clippy::expect_used,
+        clippy::panic,
+        clippy::indexing_slicing,
+        clippy::unreachable,
+        clippy::todo,
+        clippy::unimplemented
+    )
+)]
+
+pub mod demap;
+pub mod error;
+pub mod fft;
+pub mod front;
+pub mod modulation;
+pub mod numerology;
+pub mod pilots;
+pub mod transmit;
+
+pub use error::{ConfigError, ProcessError};
+pub use modulation::Modulation;
+pub use numerology::{Numerology, NumerologyParams, PilotParams};
+
+/// Complex f32 sample or bin value.
+pub type Cf32 = num_complex::Complex<f32>;

@@ -1,0 +1,1 @@
+//! Integration checks live in `tests/`; this library is empty.
