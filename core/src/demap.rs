@@ -40,10 +40,10 @@ pub fn hard_decision(modulation: Modulation, y: Cf32, bits: &mut [u8]) -> Result
     }
     let m = modulation.bits_per_axis();
     let a = modulation.axis_scale();
-    let (i_bits, rest) = bits.split_at_mut(m);
+    let (i_bits, rest) = bits.split_at_mut_checked(m).unwrap_or_default();
     axis_hard(y.re / a, i_bits);
     if modulation != Modulation::Bpsk {
-        axis_hard(y.im / a, rest);
+        axis_hard(y.im / a, rest.get_mut(..m).unwrap_or_default());
     }
     Ok(())
 }
@@ -71,10 +71,10 @@ pub fn llr_max_log(
     }
     let m = modulation.bits_per_axis();
     let a = modulation.axis_scale();
-    let (i_llrs, rest) = llrs.split_at_mut(m);
+    let (i_llrs, rest) = llrs.split_at_mut_checked(m).unwrap_or_default();
     axis_llr(y.re, a, weight, i_llrs);
     if modulation != Modulation::Bpsk {
-        axis_llr(y.im, a, weight, rest);
+        axis_llr(y.im, a, weight, rest.get_mut(..m).unwrap_or_default());
     }
     Ok(())
 }

@@ -1,0 +1,10 @@
+//! Host harness for the `flatbin` OFDM core: scenarios, channel and noise generation, the
+//! published closed forms the core is checked against, link simulation and reports.
+//!
+//! `main.rs` is thin: every subcommand is a library function here that tests call directly.
+
+pub mod link;
+pub mod noise;
+pub mod rng;
+pub mod scenario;
+pub mod theory;
