@@ -3,6 +3,7 @@
 //!
 //! `main.rs` is thin: every subcommand is a library function here that tests call directly.
 
+pub mod evaluate;
 pub mod link;
 pub mod noise;
 pub mod rng;
