@@ -121,12 +121,9 @@ pub fn llr_to_i8(llrs: &[f32], scale: f32, out: &mut [i8]) -> Result<(), Process
         });
     }
     for (o, &l) in out.iter_mut().zip(llrs) {
-        let v = libm::roundf(l * scale);
-        *o = if v.is_nan() {
-            0
-        } else {
-            v.clamp(-127.0, 127.0) as i8
-        };
+        // Round half away from zero; `as` truncates toward zero and maps NaN to 0.
+        let v = (l * scale).clamp(-127.0, 127.0);
+        *o = (v + if v >= 0.0 { 0.5 } else { -0.5 }) as i8;
     }
     Ok(())
 }
@@ -136,7 +133,7 @@ fn axis_hard(u: f32, bits: &mut [u8]) {
     let m = bits.len();
     let levels = 1usize << m;
     let top = (levels - 1) as f32;
-    let index = libm::roundf(((u + top) * 0.5).clamp(0.0, top)) as usize;
+    let index = (((u + top) * 0.5).clamp(0.0, top) + 0.5) as usize;
     let label = gray(index);
     for (j, b) in bits.iter_mut().enumerate() {
         *b = ((label >> (m - 1 - j)) & 1) as u8;
@@ -145,25 +142,42 @@ fn axis_hard(u: f32, bits: &mut [u8]) {
 
 /// Exact max-log LLRs of one Gray PAM axis: `x` received amplitude, `a` grid step,
 /// `w` channel-state weight, `out` one LLR per axis bit (MSB first).
+///
+/// O(1) per bit. Bit `j` of the Gray label of level index `i` is `⌊(i + B)/2B⌋ mod 2` with
+/// `B = 2^(m-1-j)`, so the levels sharing a bit value form runs of `2B` indices. The nearest
+/// level overall (`i*`) settles one side of the LLR; the nearest level with the other bit
+/// value is adjacent to the run holding `i*`, one index below or above it.
 fn axis_llr(x: f32, a: f32, w: f32, out: &mut [f32]) {
     let m = out.len();
     let levels = 1usize << m;
-    let mut min0 = [f32::INFINITY; 4];
-    let mut min1 = [f32::INFINITY; 4];
-    for index in 0..levels {
-        let level = a * ((2 * index) as f32 - (levels - 1) as f32);
-        let d = (x - level) * (x - level);
-        let label = gray(index);
-        for (j, (m0, m1)) in min0.iter_mut().zip(min1.iter_mut()).take(m).enumerate() {
-            if (label >> (m - 1 - j)) & 1 == 0 {
-                *m0 = m0.min(d);
-            } else {
-                *m1 = m1.min(d);
-            }
+    let top = (levels - 1) as f32;
+    let u = x / a;
+    let level = |i: usize| (2 * i) as f32 - top;
+    // Non-negative after the clamp, so adding 0.5 and truncating rounds to nearest.
+    let nearest = (((u + top) * 0.5).clamp(0.0, top) + 0.5) as usize;
+    let d_nearest = (u - level(nearest)) * (u - level(nearest));
+    let scale = w * a * a;
+    for (j, o) in out.iter_mut().enumerate() {
+        let block = 1usize << (m - 1 - j);
+        let run = (nearest + block) >> (m - j);
+        let lo = (2 * block * run).saturating_sub(block);
+        let hi = (2 * block * run + block - 1).min(levels - 1);
+        let mut d_other = f32::INFINITY;
+        if lo >= 1 {
+            let e = u - level(lo - 1);
+            d_other = e * e;
         }
-    }
-    for ((o, m0), m1) in out.iter_mut().zip(min0).zip(min1) {
-        *o = w * (m1 - m0);
+        if hi + 1 < levels {
+            let e = u - level(hi + 1);
+            d_other = d_other.min(e * e);
+        }
+        // L = w·a²·(d1 − d0): the nearest level's bit value takes d_nearest.
+        *o = scale
+            * if run & 1 == 0 {
+                d_other - d_nearest
+            } else {
+                d_nearest - d_other
+            };
     }
 }
 
