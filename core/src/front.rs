@@ -63,3 +63,48 @@ impl<F: OfdmFft<N, Sample = Cf32>, const N: usize> Front<F, N> {
         Ok(self.fft.forward(bins))
     }
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fft::MicroFft;
+    use crate::numerology::NumerologyParams;
+
+    #[test]
+    fn bad_input_is_rejected_and_bins_stay_untouched() {
+        let nu = Numerology::new(NumerologyParams::default()).unwrap();
+        let mut front = Front::new(&nu, MicroFft::<64>::new()).unwrap();
+        let mut bins = [Cf32::new(7.0, 7.0); 64];
+        let mut samples = [Cf32::new(0.1, 0.0); 72];
+        samples[40] = Cf32::new(f32::NAN, 0.0);
+        assert_eq!(
+            front.demodulate(&samples, &mut bins),
+            Err(ProcessError::NonFinite { index: 40 })
+        );
+        samples[40] = Cf32::new(0.0, f32::INFINITY);
+        assert_eq!(
+            front.demodulate(&samples, &mut bins),
+            Err(ProcessError::NonFinite { index: 40 })
+        );
+        assert_eq!(
+            front.demodulate(&samples[..71], &mut bins),
+            Err(ProcessError::BufferLength {
+                expected: 72,
+                actual: 71
+            })
+        );
+        assert!(bins.iter().all(|b| *b == Cf32::new(7.0, 7.0)));
+    }
+
+    #[test]
+    fn size_mismatch_is_a_config_error() {
+        let nu = Numerology::new(NumerologyParams::default()).unwrap();
+        assert_eq!(
+            Front::new(&nu, MicroFft::<128>::new()).err(),
+            Some(ConfigError::FftSizeMismatch {
+                numerology: 64,
+                stage: 128
+            })
+        );
+    }
+}

@@ -21,6 +21,29 @@
 //! * [`front`] — cyclic-prefix removal and FFT on the receive side.
 //! * [`demap`] — hard decisions and channel-state-weighted max-log LLRs (f32 and saturated i8).
 //!
+//! ## Example: one symbol through transmitter and receiver
+//!
+//! ```
+//! use flatbin::{demap, fft::MicroFft, front::Front, transmit::Transmitter};
+//! use flatbin::{Cf32, Modulation, Numerology, NumerologyParams};
+//!
+//! let nu = Numerology::new(NumerologyParams::default())?; // N = 64, CP = 8, 250 kHz
+//! let mut tx = Transmitter::new(nu, MicroFft::<64>::new())?;
+//! let mut rx = Front::new(&nu, MicroFft::<64>::new())?;
+//!
+//! let bits = [1u8, 0].repeat(tx.bits_per_ofdm_symbol(Modulation::Qpsk, 0) / 2);
+//! let mut samples = [Cf32::new(0.0, 0.0); 72];
+//! tx.modulate(Modulation::Qpsk, &bits, 0, &mut samples)?;
+//!
+//! let mut bins = [Cf32::new(0.0, 0.0); 64];
+//! rx.demodulate(&samples, &mut bins)?;
+//! let first_data_bin = nu.data_bins(0).next().unwrap_or(0);
+//! let mut llrs = [0.0f32; 2];
+//! demap::llr_max_log(Modulation::Qpsk, bins[first_data_bin], 100.0, &mut llrs)?;
+//! assert!(llrs[0] < 0.0 && llrs[1] > 0.0); // bits 1, 0 (positive LLR means 0)
+//! # Ok::<(), Box<dyn core::error::Error>>(())
+//! ```
+//!
 //! ## Conventions
 //!
 //! * Bins are numbered by their *logical* frequency index `k` in `-N/2 ..= N/2 - 1`; the FFT

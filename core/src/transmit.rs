@@ -123,3 +123,54 @@ fn fill_grid(
     }
     Ok(())
 }
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+    use crate::fft::MicroFft;
+    use crate::numerology::NumerologyParams;
+
+    #[test]
+    fn bad_bits_and_buffers_are_rejected() {
+        let nu = Numerology::new(NumerologyParams::default()).unwrap();
+        let mut tx = Transmitter::new(nu, MicroFft::<64>::new()).unwrap();
+        let n_bits = tx.bits_per_ofdm_symbol(Modulation::Qam16, 0);
+        assert_eq!(n_bits, 41 * 4); // 41 data bins (counted in numerology tests) × 4 bits
+        let mut bits = [0u8; 164];
+        let mut out = [Cf32::new(0.0, 0.0); 72];
+        bits[9] = 2;
+        assert_eq!(
+            tx.modulate(Modulation::Qam16, &bits, 0, &mut out),
+            Err(ProcessError::InvalidBit { index: 9 })
+        );
+        bits[9] = 1;
+        assert_eq!(
+            tx.modulate(Modulation::Qam16, &bits[..163], 0, &mut out),
+            Err(ProcessError::BufferLength {
+                expected: 164,
+                actual: 163
+            })
+        );
+        assert_eq!(
+            tx.modulate(Modulation::Qam16, &bits, 0, &mut out[..70]),
+            Err(ProcessError::BufferLength {
+                expected: 72,
+                actual: 70
+            })
+        );
+        assert!(tx.modulate(Modulation::Qam16, &bits, 0, &mut out).is_ok());
+    }
+
+    #[test]
+    fn symbol_power_follows_unitary_scaling() {
+        // Unitary IFFT (Parseval): mean power of the useful part = Σ|X_k|² / N. With 0 dB
+        // pilots on a QPSK grid every used bin has unit energy: 56 / 64.
+        let nu = Numerology::new(NumerologyParams::default()).unwrap();
+        let mut tx = Transmitter::new(nu, MicroFft::<64>::new()).unwrap();
+        let bits = [0u8, 1].repeat(41);
+        let mut out = [Cf32::new(0.0, 0.0); 72];
+        tx.modulate(Modulation::Qpsk, &bits, 0, &mut out).unwrap();
+        let p: f32 = out[8..].iter().map(|v| v.norm_sqr()).sum::<f32>() / 64.0;
+        assert!((p - 56.0 / 64.0).abs() < 1e-5, "{p}");
+    }
+}
