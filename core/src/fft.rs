@@ -8,7 +8,8 @@
 //! Both directions are **unitary**: `X[k] = N^(-1/2) Σ x[n] e^(-j2πkn/N)` and
 //! `x[n] = N^(-1/2) Σ X[k] e^(+j2πkn/N)`, so energy is preserved and a round trip is the
 //! identity. An implementation may leave its output scaled by a power of two and report the
-//! block exponent `e`: the unitary transform equals `output · 2^e` (always 0 for f32).
+//! block exponent `e`: the unitary transform equals `output · 2^e · RESIDUAL_SCALE` (f32:
+//! `e = 0`, scale 1; Q15: see [`crate::fft_q15`], outputs read as fractions).
 //!
 //! ## Output order
 //!
@@ -20,6 +21,9 @@ use crate::Cf32;
 pub trait OfdmFft<const N: usize> {
     /// Element type of the buffer (complex f32, or complex Q15).
     type Sample: Copy;
+    /// Constant factor left after the power-of-two block exponent: the unitary transform is
+    /// `output · 2^e · RESIDUAL_SCALE` (1 for f32; `1/sqrt 2` for Q15 when log2 N is odd).
+    const RESIDUAL_SCALE: f32;
     /// Forward unitary DFT in place; returns the block exponent `e` (unitary DFT = out · 2^e).
     fn forward(&mut self, buf: &mut [Self::Sample; N]) -> i32;
     /// Inverse unitary DFT in place; returns the block exponent `e` (unitary IDFT = out · 2^e).
@@ -74,6 +78,7 @@ impl<const N: usize> Default for MicroFft<N> {
 
 impl<const N: usize> OfdmFft<N> for MicroFft<N> {
     type Sample = Cf32;
+    const RESIDUAL_SCALE: f32 = 1.0;
 
     fn forward(&mut self, buf: &mut [Cf32; N]) -> i32 {
         Self::raw_forward(buf);

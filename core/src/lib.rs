@@ -17,6 +17,7 @@
 //! * [`pilots`] — the pilot PRBS (seeded, per symbol).
 //! * [`modulation`] — Gray-mapped BPSK … 256-QAM with unit mean energy.
 //! * [`fft`] — the FFT front-end trait and its f32 implementation.
+//! * [`fixed`] — Q15 numbers; [`fft_q15`] — the Q15 block-floating-point FFT.
 //! * [`transmit`] — bits to time-domain samples with cyclic prefix.
 //! * [`front`] — cyclic-prefix removal and FFT on the receive side.
 //! * [`demap`] — hard decisions and channel-state-weighted max-log LLRs (f32 and saturated i8).
@@ -73,6 +74,8 @@
 pub mod demap;
 pub mod error;
 pub mod fft;
+pub mod fft_q15;
+pub mod fixed;
 pub mod front;
 pub mod modulation;
 pub mod numerology;

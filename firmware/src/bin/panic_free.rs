@@ -1,0 +1,182 @@
+//! Panic-free link check: calls every public per-symbol entry point of the core for every
+//! supported size, with inputs the optimiser cannot see through (`black_box`). The panic
+//! handler calls a function that is declared but defined nowhere, so if any panic path
+//! survives optimisation the link fails naming `flatbin_panic_path_reachable`.
+//!
+//! Built (not run) by `cargo xtask mcu` for both cores.
+
+#![no_std]
+#![no_main]
+
+use core::hint::black_box;
+use core::ptr::addr_of_mut;
+
+use cortex_m_rt::entry;
+use flatbin::demap::{demap_symbols, hard_decision, llr_max_log, llr_to_i8};
+use flatbin::fft::{MicroFft, OfdmFft};
+use flatbin::front::Front;
+use flatbin::transmit::Transmitter;
+use flatbin::{Cf32, Modulation, Numerology, NumerologyParams};
+use flatbin_firmware::{exit, prefix};
+
+#[cfg(feature = "q15")]
+use flatbin::{fft_q15::Q15Fft, fixed::Cq15};
+
+#[cfg(not(feature = "locate-panics"))]
+extern "C" {
+    /// Deliberately never defined: referenced only from the panic handler.
+    fn flatbin_panic_path_reachable() -> !;
+}
+
+#[cfg(not(feature = "locate-panics"))]
+#[panic_handler]
+fn panic(_: &core::panic::PanicInfo) -> ! {
+    // SAFETY: never executed in a correct build: the link fails while this is reachable.
+    unsafe { flatbin_panic_path_reachable() }
+}
+
+/// Diagnostic build (`--features locate-panics`): links, so the xtask can list the call sites
+/// of the `core::panicking` functions that survived.
+#[cfg(feature = "locate-panics")]
+#[panic_handler]
+fn panic(_: &core::panic::PanicInfo) -> ! {
+    loop {
+        cortex_m::asm::udf();
+    }
+}
+
+/// Keeps a value alive without a `must_use` warning (results are not inspected here).
+fn sink<T>(value: T) {
+    black_box(value);
+}
+
+/// Largest size on this core: 4096 on the M4F (256 KiB RAM), 256 on the M0 (16 KiB RAM).
+#[cfg(not(core_m0))]
+const MAX_N: usize = 4096;
+#[cfg(core_m0)]
+const MAX_N: usize = 256;
+/// Room for the longest symbol: N + a cyclic prefix of up to N/4.
+const MAX_SYMBOL: usize = MAX_N + MAX_N / 4;
+/// Bits of one symbol at 256-QAM with every bin used, one per byte.
+const MAX_BITS: usize = MAX_N * 8;
+
+static mut SAMPLES: [Cf32; MAX_SYMBOL] = [Cf32::new(0.0, 0.0); MAX_SYMBOL];
+static mut BINS: [Cf32; MAX_N] = [Cf32::new(0.0, 0.0); MAX_N];
+static mut BITS: [u8; MAX_BITS] = [0; MAX_BITS];
+static mut LLRS: [f32; 64] = [0.0; 64];
+static mut LLRS_I8: [i8; 64] = [0; 64];
+#[cfg(feature = "q15")]
+static mut BUF_Q15: [Cq15; MAX_N] = [Cq15 { re: 0, im: 0 }; MAX_N];
+
+struct Buffers {
+    samples: &'static mut [Cf32; MAX_SYMBOL],
+    bins: &'static mut [Cf32; MAX_N],
+    bits: &'static mut [u8; MAX_BITS],
+    llrs: &'static mut [f32; 64],
+    llrs_i8: &'static mut [i8; 64],
+    #[cfg(feature = "q15")]
+    q15: &'static mut [Cq15; MAX_N],
+}
+
+fn params(n: usize) -> NumerologyParams {
+    black_box(NumerologyParams {
+        fft_len: n,
+        cp_len: n / 8,
+        ..NumerologyParams::default()
+    })
+}
+
+/// Every entry point at size N. Results go to `black_box` so nothing is dropped as dead.
+#[inline(never)]
+fn at_size<const N: usize>(b: &mut Buffers) {
+    let Ok(nu) = Numerology::new(params(N)) else {
+        black_box(N);
+        return;
+    };
+    let symbol = black_box(0u32);
+    let modulation = black_box(Modulation::Qam16);
+    let len = black_box(nu.symbol_len());
+    let bits_len = black_box(nu.data_len(symbol) * modulation.bits_per_symbol());
+
+    if let Ok(mut tx) = Transmitter::new(nu, MicroFft::<N>::new()) {
+        let bits = b.bits.get(..bits_len).unwrap_or_default();
+        let out = b.samples.get_mut(..len).unwrap_or_default();
+        sink(tx.modulate(modulation, black_box(bits), symbol, black_box(out)));
+        if let Some(grid) = prefix::<Cf32, N>(&mut b.bins[..]) {
+            let bits = b.bits.get(..bits_len).unwrap_or_default();
+            sink(tx.map_grid(modulation, black_box(bits), symbol, black_box(grid)));
+        }
+    }
+    if let (Ok(mut front), Some(bins)) = (
+        Front::new(&nu, MicroFft::<N>::new()),
+        prefix::<Cf32, N>(&mut b.bins[..]),
+    ) {
+        let samples = b.samples.get(..len).unwrap_or_default();
+        sink(front.demodulate(black_box(samples), black_box(bins)));
+    }
+    if let Some(bins) = prefix::<Cf32, N>(&mut b.bins[..]) {
+        sink(MicroFft::<N>::new().forward(black_box(&mut *bins)));
+        sink(MicroFft::<N>::new().inverse(black_box(bins)));
+    }
+    #[cfg(feature = "q15")]
+    if let Some(x) = prefix::<Cq15, N>(&mut b.q15[..]) {
+        sink(Q15Fft::<N>::new().forward(black_box(&mut *x)));
+        sink(Q15Fft::<N>::new().inverse(black_box(x)));
+    }
+}
+
+/// The demapper entry points (size-independent).
+#[inline(never)]
+fn demapper(b: &mut Buffers) {
+    for modulation in Modulation::ALL {
+        let modulation = black_box(modulation);
+        let y = black_box(Cf32::new(0.3, -0.7));
+        sink(hard_decision(modulation, y, black_box(&mut b.bits[..])));
+        sink(llr_max_log(modulation, y, black_box(10.0), black_box(&mut b.llrs[..])));
+        let count = black_box(4usize);
+        let ys = black_box(&b.bins[..]).get(..count).unwrap_or_default();
+        let weights = black_box([1.0f32; 4]);
+        let k = count * modulation.bits_per_symbol();
+        sink(demap_symbols(
+            modulation,
+            ys,
+            &weights,
+            black_box(&mut b.llrs[..]).get_mut(..k).unwrap_or_default(),
+        ));
+        sink(llr_to_i8(
+            black_box(&b.llrs[..]),
+            black_box(flatbin::demap::I8_LSB_PER_LLR),
+            black_box(&mut b.llrs_i8[..]),
+        ));
+    }
+}
+
+#[entry]
+fn main() -> ! {
+    // SAFETY: the only references to these buffers, taken once here.
+    let mut b = unsafe {
+        Buffers {
+            samples: &mut *addr_of_mut!(SAMPLES),
+            bins: &mut *addr_of_mut!(BINS),
+            bits: &mut *addr_of_mut!(BITS),
+            llrs: &mut *addr_of_mut!(LLRS),
+            llrs_i8: &mut *addr_of_mut!(LLRS_I8),
+            #[cfg(feature = "q15")]
+            q15: &mut *addr_of_mut!(BUF_Q15),
+        }
+    };
+    at_size::<16>(&mut b);
+    at_size::<32>(&mut b);
+    at_size::<64>(&mut b);
+    at_size::<128>(&mut b);
+    at_size::<256>(&mut b);
+    #[cfg(not(core_m0))]
+    {
+        at_size::<512>(&mut b);
+        at_size::<1024>(&mut b);
+        at_size::<2048>(&mut b);
+        at_size::<4096>(&mut b);
+    }
+    demapper(&mut b);
+    exit(0)
+}

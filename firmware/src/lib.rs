@@ -1,0 +1,126 @@
+//! Shared pieces of the measurement firmware: the region markers the instruction-counting
+//! QEMU plugin looks for, stack painting, static buffers and the semihosting exit.
+//!
+//! Each binary picks its own panic handler (`cost`/`vectors` report panics over semihosting;
+//! `panic_free` must link none), so this library does not pull one in.
+
+#![no_std]
+
+use core::ptr::{addr_of, addr_of_mut, read_volatile, write_volatile};
+
+/// The core this build runs on (`cortex-m4f` or `cortex-m0`), from `build.rs`.
+pub const CORE: &str = env!("FLATBIN_CORE");
+
+/// Written by the markers, so [`probe_start`] and [`probe_stop`] have different bodies and the
+/// linker cannot fold them into one address.
+static mut PROBE_MARK: u32 = 0;
+
+/// Start of a measured region: the counting plugin snapshots its counters when this runs.
+#[no_mangle]
+#[inline(never)]
+pub extern "C" fn probe_start() {
+    // SAFETY: single core, interrupts off; a plain volatile store to a private static.
+    unsafe { write_volatile(addr_of_mut!(PROBE_MARK), 0x5354_4152) } // "STAR"
+}
+
+/// End of a measured region: the plugin prints the counts since the last [`probe_start`].
+#[no_mangle]
+#[inline(never)]
+pub extern "C" fn probe_stop() {
+    // SAFETY: as in `probe_start`.
+    unsafe { write_volatile(addr_of_mut!(PROBE_MARK), 0x53_544f_50) } // "STOP"
+}
+
+/// Pattern painted below the stack pointer before a region; any other value found afterwards
+/// was written by the region.
+const PAINT: u32 = 0xa5c3_5a3c;
+
+extern "C" {
+    /// Lowest address the stack may grow to (cortex-m-rt's `link.x`: the end of `.bss`/`.uninit`).
+    static _stack_end: u32;
+}
+
+/// Result of one measured region.
+#[derive(Clone, Copy, Debug)]
+pub struct Measured {
+    /// Index of the region, counted from 0 in the order the plugin reports them.
+    pub region: u32,
+    /// Peak stack below the caller's stack pointer during the region, bytes.
+    pub stack_bytes: u32,
+    /// The region reached the bottom of the painted area: the figure is a lower bound.
+    pub overflowed: bool,
+}
+
+static mut REGIONS: u32 = 0;
+
+/// Runs `stage` between [`probe_start`] and [`probe_stop`] and measures its peak stack.
+///
+/// `stage` is called through a `&mut dyn FnMut` that went through `black_box`, so its body is a
+/// separate function: the stack it uses all lies below this function's stack pointer, which
+/// is fixed for the whole body. Everything between `_stack_end` and that pointer is painted
+/// first and scanned afterwards. Interrupts must be off (the firmware disables them at start).
+#[inline(never)]
+pub fn measure(stage: &mut dyn FnMut()) -> Measured {
+    let stage = core::hint::black_box(stage);
+    let sp = cortex_m::register::msp::read() as usize;
+    let bottom = addr_of!(_stack_end) as usize;
+    let mut p = bottom;
+    while p + 4 <= sp {
+        // SAFETY: [bottom, sp) is the free part of the stack: nothing lives there while
+        // interrupts are off, and this function's own frame is above `sp`.
+        unsafe { write_volatile(p as *mut u32, PAINT) };
+        p += 4;
+    }
+    probe_start();
+    stage();
+    probe_stop();
+    let mut low = bottom;
+    // SAFETY: reads of the same free stack area.
+    while low + 4 <= sp && unsafe { read_volatile(low as *const u32) } == PAINT {
+        low += 4;
+    }
+    // SAFETY: single core, interrupts off.
+    let region = unsafe {
+        let r = read_volatile(addr_of!(REGIONS));
+        write_volatile(addr_of_mut!(REGIONS), r + 1);
+        r
+    };
+    Measured {
+        region,
+        stack_bytes: (sp - low) as u32,
+        overflowed: low == bottom,
+    }
+}
+
+/// Ends the emulation with `SYS_EXIT_EXTENDED` (semihosting operation 0x20, reason
+/// `ADP_Stopped_ApplicationExit` = 0x20026) so QEMU exits with `code` as its status.
+pub fn exit(code: u32) -> ! {
+    let block: [usize; 2] = [0x20026, code as usize];
+    // SAFETY: the semihosting call reads the two-word parameter block and does not return
+    // under QEMU.
+    unsafe {
+        cortex_m_semihosting::syscall(0x20, &block);
+    }
+    loop {
+        cortex_m::asm::wfi();
+    }
+}
+
+/// Fills `out` with the Q15 samples of `case` (see `vectors_gen::for_each_sample`), calling
+/// `put(slot, re, im)` for each.
+pub fn fill<T>(case_index: usize, out: &mut [T], mut put: impl FnMut(&mut T, i16, i16)) {
+    let n = out.len();
+    let Some(case) = vectors_gen::CASES.get(case_index) else {
+        return;
+    };
+    vectors_gen::for_each_sample(case.kind, vectors_gen::seed(case_index, n), n, |i, re, im| {
+        if let Some(slot) = out.get_mut(i) {
+            put(slot, re, im);
+        }
+    });
+}
+
+/// A `&mut [T; N]` view of the first `N` elements of `buf` (None when `buf` is shorter).
+pub fn prefix<T, const N: usize>(buf: &mut [T]) -> Option<&mut [T; N]> {
+    buf.get_mut(..N).and_then(|s| <&mut [T; N]>::try_from(s).ok())
+}
