@@ -79,6 +79,7 @@ pub mod fixed;
 pub mod front;
 pub mod modulation;
 pub mod numerology;
+pub mod packed;
 pub mod pilots;
 pub mod transmit;
 

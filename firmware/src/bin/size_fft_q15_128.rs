@@ -1,0 +1,6 @@
+//! Size probe `size_fft_q15_128`: see `src/size_probe.rs`.
+
+#![no_std]
+#![no_main]
+
+include!("../size_probe.rs");
