@@ -18,7 +18,8 @@
 //! * [`modulation`] — Gray-mapped BPSK … 256-QAM with unit mean energy.
 //! * [`fft`] — the FFT front-end trait and its f32 implementation.
 //! * [`fixed`] — Q15 numbers; [`fft_q15`] — the Q15 block-floating-point FFT.
-//! * [`transmit`] — bits to time-domain samples with cyclic prefix.
+//! * [`transmit`] — bits to time-domain samples with cyclic prefix; [`transmit_q15`] — the
+//!   same in Q15 with no floating point per symbol.
 //! * [`front`] — cyclic-prefix removal and FFT on the receive side.
 //! * [`demap`] — hard decisions and channel-state-weighted max-log LLRs (f32 and saturated i8).
 //!
@@ -82,6 +83,7 @@ pub mod numerology;
 pub mod packed;
 pub mod pilots;
 pub mod transmit;
+pub mod transmit_q15;
 
 pub use error::{ConfigError, ProcessError};
 pub use modulation::Modulation;
