@@ -67,7 +67,9 @@ impl<const N: usize> Q15Fft<N> {
     );
     /// log2 N.
     pub const LOG2_N: u32 = N.trailing_zeros();
-    /// `e^{-j2πm/N}` in Q15, packed (re low, im high), `m = 0..N` (the stages use `m < 3N/4`).
+    /// Twiddles of the radix-4 stages, stage after stage, each as triplets
+    /// `(W^k, W^2k, W^3k)`, `k = 0..span`, `W = e^{-j2π/4·span}`: one sequential read per
+    /// butterfly. Fewer than N words in total.
     const TWIDDLES: [u32; N] = twiddle_table::<N>();
 
     /// A transform of size `N` (checked at compile time).
@@ -82,7 +84,8 @@ impl<const N: usize> Q15Fft<N> {
     pub fn forward_raw(&mut self, buf: &mut [Cq15; N]) -> i32 {
         let words = crate::packed::as_words_mut(buf);
         let scratch = &mut self.scratch;
-        let tw: &[u32; N] = &Self::TWIDDLES;
+        let tw: &[u32] = &Self::TWIDDLES;
+        let mut tw_offset = 0usize;
         let m = component_bits(words) as i32;
         // First stage: the least shift that keeps its worst case in range; negative shifts
         // scale a quiet block up to use the whole Q15 range (block floating point).
@@ -100,11 +103,13 @@ impl<const N: usize> Q15Fft<N> {
             // |x|² < 2^mm bounds |x| < 2^(mm/2), and i16 parts bound |x| ≤ 2^15.5: four
             // rotated terms stay below 2^15 after a shift of min(ceil(mm/2) − 13, 3).
             let s = mm.div_ceil(2).saturating_sub(13).min(3);
+            let stage_tw = tw.get(tw_offset..tw_offset + 3 * span).unwrap_or(&[]);
+            tw_offset += 3 * span;
             mm = match s {
-                0 => radix4_stage::<Ops, 0, N>(scratch, tw, span),
-                1 => radix4_stage::<Ops, 1, N>(scratch, tw, span),
-                2 => radix4_stage::<Ops, 2, N>(scratch, tw, span),
-                _ => radix4_stage::<Ops, 3, N>(scratch, tw, span),
+                0 => stage::<0, N>(scratch, stage_tw, span),
+                1 => stage::<1, N>(scratch, stage_tw, span),
+                2 => stage::<2, N>(scratch, stage_tw, span),
+                _ => stage::<3, N>(scratch, stage_tw, span),
             };
             shifts += s as i32;
             span *= 4;
@@ -305,57 +310,180 @@ fn butterfly<O: Packed>(a: u32, b: u32, c: u32, d: u32) -> [u32; 4] {
     ]
 }
 
-/// One radix-4 stage with twiddles, in place, merging sub-transforms of length `span`.
-/// Returns the squared-magnitude bits of its output.
-fn radix4_stage<O: Packed, const S: u32, const N: usize>(
-    data: &mut [u32; N],
-    tw: &[u32; N],
-    span: usize,
-) -> u32 {
+/// A radix-4 stage with twiddles on this target: the hand-scheduled loop on cores with the
+/// DSP extension, the generic one elsewhere (both compute the same bits).
+#[inline(always)]
+fn stage<const S: u32, const N: usize>(data: &mut [u32; N], tw: &[u32], span: usize) -> u32 {
+    #[cfg(arm_dsp)]
+    {
+        radix4_stage_dsp::<S, N>(data, tw, span)
+    }
+    #[cfg(not(arm_dsp))]
+    {
+        radix4_stage::<Ops, S, N>(data, tw, span)
+    }
+}
+
+/// One radix-4 stage with twiddles, in place, merging sub-transforms of length `span`;
+/// `tw` holds the stage's `3·span` twiddle triplets. Returns the squared-magnitude bits of
+/// its output.
+#[cfg_attr(arm_dsp, allow(dead_code))]
+fn radix4_stage<O: Packed, const S: u32, const N: usize>(data: &mut [u32; N], tw: &[u32], span: usize) -> u32 {
     let mut acc = 0u32;
-    let span = span.max(1);
-    let stride = (N / (4 * span)).max(1);
-    for block in data.chunks_exact_mut(4 * span) {
-        let (q01, q23) = block.split_at_mut(2 * span);
-        let (q0, q1) = q01.split_at_mut(span);
-        let (q2, q3) = q23.split_at_mut(span);
-        let w1 = tw.iter().step_by(stride);
-        let w2 = tw.iter().step_by(2 * stride);
-        let w3 = tw.iter().step_by(3 * stride);
-        let quarters = q0
-            .iter_mut()
-            .zip(q1.iter_mut())
-            .zip(q2.iter_mut())
-            .zip(q3.iter_mut());
-        for ((((x0, x1), x2), x3), ((&t1, &t2), &t3)) in quarters.zip(w1.zip(w2).zip(w3)) {
-            let a = O::guard::<S, true>(*x0);
-            let b = O::cmul::<S>(*x1, t2);
-            let c = O::cmul::<S>(*x2, t1);
-            let d = O::cmul::<S>(*x3, t3);
-            let [y0, y1, y2, y3] = butterfly::<O>(a, b, c, d);
-            acc |= O::mag2(y0) | O::mag2(y1) | O::mag2(y2) | O::mag2(y3);
-            *x0 = y0;
-            *x1 = y1;
-            *x2 = y2;
-            *x3 = y3;
+    // The caller passes spans 2·4^j or 4^j below N with their full twiddle set; anything else
+    // is left untouched rather than read out of bounds.
+    if span == 0 || !(4 * span).is_power_of_two() || 4 * span > N || tw.len() < 3 * span {
+        return 32;
+    }
+    let base = data.as_mut_ptr();
+    for block in 0..N / (4 * span) {
+        // SAFETY: blocks of 4·span words tile [0, N): block·4·span + 3·span + k < N for
+        // k < span. The twiddle pointer reads 3k, 3k+1, 3k+2 < 3·span ≤ tw.len(). `data` is
+        // borrowed mutably for the whole loop and `tw` is a different allocation (flash).
+        unsafe {
+            let mut p = base.add(block * 4 * span);
+            let end = p.add(span);
+            let mut t = tw.as_ptr();
+            while p < end {
+                let (x0, x1, x2, x3) = (*p, *p.add(span), *p.add(2 * span), *p.add(3 * span));
+                let (w1, w2, w3) = (*t, *t.add(1), *t.add(2));
+                let a = O::guard::<S, true>(x0);
+                let b = O::cmul::<S>(x1, w2);
+                let c = O::cmul::<S>(x2, w1);
+                let d = O::cmul::<S>(x3, w3);
+                let [y0, y1, y2, y3] = butterfly::<O>(a, b, c, d);
+                acc |= O::mag2(y0) | O::mag2(y1) | O::mag2(y2) | O::mag2(y3);
+                *p = y0;
+                *p.add(span) = y1;
+                *p.add(2 * span) = y2;
+                *p.add(3 * span) = y3;
+                p = p.add(1);
+                t = t.add(3);
+            }
         }
     }
     bits(acc)
 }
 
-/// `e^{-j2πm/N}` in Q15 for `m = 0..N`, packed (re low, im high), from a compile-time f64
-/// evaluation; values round to nearest and saturate at `32767`.
+/// The radix-4 stage of [`radix4_stage`] as one hand-scheduled ARMv7E-M loop: the same
+/// operations in the same order (see [`crate::packed::Dsp`] for each), so the same bits, in
+/// about 46 instructions per butterfly (no spills: 12 registers).
+#[cfg(arm_dsp)]
+fn radix4_stage_dsp<const S: u32, const N: usize>(data: &mut [u32; N], tw: &[u32], span: usize) -> u32 {
+    if span == 0 || !(4 * span).is_power_of_two() || 4 * span > N || tw.len() < 3 * span {
+        return 32;
+    }
+    let mut acc = 0u32;
+    let base = data.as_mut_ptr();
+    for block in 0..N / (4 * span) {
+        // SAFETY: as in `radix4_stage`: the loop touches words p, p + span, p + 2·span,
+        // p + 3·span for p in [block·4·span, block·4·span + span), all below N, and reads
+        // 3·span twiddle words.
+        unsafe {
+            let p = base.add(block * 4 * span);
+            let q = p.add(2 * span);
+            let end = p.add(span);
+            macro_rules! kernel {
+                ($cmul_im:literal, $pk:literal, $round:literal, $guard:literal) => {
+                    core::arch::asm!(
+                        "2:",
+                        "ldmia r3!, {{r4, r5, r8}}",
+                        // b = x1·W^2k (x1 at p + span)
+                        "ldr r9, [r0, r2]",
+                        "smusd r10, r9, r5",
+                        "smuadx r11, r9, r5",
+                        concat!("add r10, r10, #", $round),
+                        $cmul_im,
+                        concat!("pkhtb r5, r11, r10, asr #", $pk),
+                        // c = x2·W^k (x2 at q)
+                        "ldr r9, [r1]",
+                        "smusd r10, r9, r4",
+                        "smuadx r11, r9, r4",
+                        concat!("add r10, r10, #", $round),
+                        $cmul_im,
+                        concat!("pkhtb r4, r11, r10, asr #", $pk),
+                        // d = x3·W^3k (x3 at q + span)
+                        "ldr r9, [r1, r2]",
+                        "smusd r10, r9, r8",
+                        "smuadx r11, r9, r8",
+                        concat!("add r10, r10, #", $round),
+                        $cmul_im,
+                        concat!("pkhtb r8, r11, r10, asr #", $pk),
+                        // a = guard(x0)
+                        "ldr r9, [r0]",
+                        $guard,
+                        "qadd16 r10, r9, r5",
+                        "qsub16 r9, r9, r5",
+                        "qadd16 r11, r4, r8",
+                        "qsub16 r4, r4, r8",
+                        "shadd16 r5, r10, r11",
+                        "shsub16 r8, r10, r11",
+                        "shsax r10, r9, r4",
+                        "shasx r11, r9, r4",
+                        "str r10, [r0, r2]",
+                        "str r8, [r1]",
+                        "str r11, [r1, r2]",
+                        "smuad r9, r5, r5",
+                        "orr lr, lr, r9",
+                        "smuad r9, r10, r10",
+                        "orr lr, lr, r9",
+                        "smuad r9, r8, r8",
+                        "orr lr, lr, r9",
+                        "smuad r9, r11, r11",
+                        "orr lr, lr, r9",
+                        "str r5, [r0], #4",
+                        "add r1, r1, #4",
+                        "cmp r0, r12",
+                        "bne 2b",
+                        inout("r0") p => _, inout("r1") q => _, in("r2") span * 4,
+                        inout("r3") tw.as_ptr() => _, out("r4") _, out("r5") _, out("r8") _,
+                        out("r9") _, out("r10") _, out("r11") _, in("r12") end,
+                        inout("lr") acc, options(nostack))
+                };
+            }
+            // Per S: the rounding of the imaginary part (shift so that bit 14+S lands on bit 16,
+            // add 2^15), the PKHTB shift 14+S, the real part's rounding constant 2^(13+S), and the
+            // guard scaling of x0 with its +1 (packed::Packed::guard).
+            match S {
+                0 => kernel!("lsl r11, r11, #2\n add r11, r11, #0x8000", "14", "0x2000",
+                    "mov r10, #0x00010001\n qadd16 r9, r9, r9\n qadd16 r9, r9, r10"),
+                1 => kernel!("lsl r11, r11, #1\n add r11, r11, #0x8000", "15", "0x4000",
+                    "mov r10, #0x00010001\n qadd16 r9, r9, r10"),
+                2 => kernel!("add r11, r11, #0x8000", "16", "0x8000",
+                    "mov r10, #0x00030003\n shadd16 r9, r9, r10"),
+                _ => kernel!("asr r11, r11, #1\n add r11, r11, #0x8000", "17", "0x10000",
+                    "mov r10, #0x00060006\n shadd16 r9, r9, r10\n mov r10, #0\n shadd16 r9, r9, r10"),
+            }
+        }
+    }
+    bits(acc)
+}
+
+/// Radix-4 stage twiddle triplets for every stage of an `N`-point transform (see
+/// [`Q15Fft::TWIDDLES`]), Q15, packed (re low, im high), from a compile-time f64 evaluation;
+/// values round to nearest and saturate at `32767`.
 const fn twiddle_table<const N: usize>() -> [u32; N] {
     let mut t = [0u32; N];
-    let mut m = 0;
-    while m < N {
-        let (c, s) = cos_sin_turn(m, N);
-        // Const evaluation: an out-of-range index is a compile error, never a runtime panic.
-        #[allow(clippy::indexing_slicing)]
-        {
-            t[m] = Cq15::new(q15_const(c), q15_const(-s)).to_bits();
+    let mut span = if N.trailing_zeros() % 2 == 1 { 2 } else { 4 };
+    let mut at = 0;
+    while span < N {
+        let mut k = 0;
+        while k < span {
+            let mut q = 1;
+            while q <= 3 {
+                // W^(qk) with W = e^{-j2π/4·span} is e^{-j2π·qk/(4·span)}.
+                let (c, s) = cos_sin_turn(q * k, 4 * span);
+                // Const evaluation: an out-of-range index is a compile error, never a panic.
+                #[allow(clippy::indexing_slicing)]
+                {
+                    t[at] = Cq15::new(q15_const(c), q15_const(-s)).to_bits();
+                }
+                at += 1;
+                q += 1;
+            }
+            k += 1;
         }
-        m += 1;
+        span *= 4;
     }
     t
 }
@@ -413,23 +541,25 @@ mod tests {
 
     #[test]
     fn twiddles_match_libm_to_q15_rounding() {
-        // The compile-time table against libm's cos/sin (independent implementation):
-        // identical after Q15 rounding except where the value sits on a rounding boundary.
+        // The compile-time table against libm's cos/sin (an independent implementation):
+        // equal after Q15 rounding to within one LSB (values on a rounding boundary).
         let tw = Q15Fft::<256>::TWIDDLES;
-        for (m, w) in tw.iter().enumerate() {
-            let th = 2.0 * core::f64::consts::PI * m as f64 / 256.0;
-            let c = Cq15::from_bits(*w);
-            assert!(
-                (i32::from(c.re) - i32::from(q15_const(libm::cos(th)))).abs() <= 1,
-                "m={m}"
-            );
-            assert!(
-                (i32::from(c.im) - i32::from(q15_const(-libm::sin(th)))).abs() <= 1,
-                "m={m}"
-            );
+        let mut at = 0;
+        for span in [4usize, 16, 64] {
+            for k in 0..span {
+                for q in 1..=3 {
+                    let th = 2.0 * core::f64::consts::PI * (q * k) as f64 / (4 * span) as f64;
+                    let c = Cq15::from_bits(tw[at]);
+                    assert!((i32::from(c.re) - i32::from(q15_const(libm::cos(th)))).abs() <= 1);
+                    assert!((i32::from(c.im) - i32::from(q15_const(-libm::sin(th)))).abs() <= 1);
+                    at += 1;
+                }
+            }
         }
+        assert_eq!(at, 252); // 3·(4 + 16 + 64) entries, counted by hand
         assert_eq!(Cq15::from_bits(tw[0]), Cq15::new(32767, 0));
-        assert_eq!(Cq15::from_bits(tw[64]), Cq15::new(0, -32768));
+        // span 4, k = 1, q = 2: W^2 = e^{-jπ/4}.
+        assert_eq!(Cq15::from_bits(tw[4]), Cq15::new(23170, -23170));
     }
 
     #[test]

@@ -81,7 +81,7 @@ impl Modulation {
         }
         let m = self.bits_per_axis();
         let a = self.axis_scale();
-        let (i_bits, q_bits) = bits.split_at(m);
+        let (i_bits, q_bits) = bits.split_at_checked(m)?;
         let re = a * pam_level(i_bits);
         let im = if self == Self::Bpsk {
             0.0

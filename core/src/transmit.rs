@@ -76,7 +76,7 @@ impl<F: OfdmFft<N, Sample = Cf32>, const N: usize> Transmitter<F, N> {
         }
         fill_grid(&self.numerology, modulation, bits, symbol, &mut self.grid)?;
         self.fft.inverse(&mut self.grid);
-        let (prefix, useful) = out.split_at_mut(cp);
+        let (prefix, useful) = out.split_at_mut_checked(cp).unwrap_or_default();
         for (o, g) in useful.iter_mut().zip(self.grid.iter()) {
             *o = *g;
         }

@@ -182,7 +182,7 @@ impl<const N: usize> TransmitterQ15<N> {
             }
         }
         let e = self.fft.inverse(&mut self.grid);
-        let (prefix, useful) = out.split_at_mut(cp);
+        let (prefix, useful) = out.split_at_mut_checked(cp).unwrap_or_default();
         for (o, g) in useful.iter_mut().zip(self.grid.iter()) {
             *o = shift_sample(*g, e);
         }
