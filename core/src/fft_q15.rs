@@ -79,46 +79,192 @@ impl<const N: usize> Q15Fft<N> {
         Self { scratch: [0; N] }
     }
 
-    /// Forward transform, unnormalised and scaled by `2^-shifts`; returns `shifts` (negative
-    /// when a quiet block was scaled up).
+    /// Forward transform in place, unnormalised and scaled by `2^-shifts`; returns `shifts`
+    /// (negative when a quiet block was scaled up). Copies `buf` to the scratch block, then
+    /// runs [`forward_from`](Self::forward_from) back into `buf`.
     pub fn forward_raw(&mut self, buf: &mut [Cq15; N]) -> i32 {
         let words = crate::packed::as_words_mut(buf);
-        let scratch = &mut self.scratch;
-        let tw: &[u32] = &Self::TWIDDLES;
-        let mut tw_offset = 0usize;
-        let m = component_bits(words) as i32;
-        // First stage: the least shift that keeps its worst case in range; negative shifts
-        // scale a quiet block up to use the whole Q15 range (block floating point).
-        let (mut shifts, mut mm, mut span);
-        if Self::LOG2_N % 2 == 1 {
-            shifts = m - 14;
-            mm = with_prep!(shifts, first_radix2::<Ops, N>(words, scratch));
-            span = 2;
-        } else {
-            shifts = m - 13;
-            mm = with_prep!(shifts, first_radix4::<Ops, N>(words, scratch));
-            span = 4;
-        }
-        while span < N {
-            // |x|² < 2^mm bounds |x| < 2^(mm/2), and i16 parts bound |x| ≤ 2^15.5: four
-            // rotated terms stay below 2^15 after a shift of min(ceil(mm/2) − 13, 3).
-            let s = mm.div_ceil(2).saturating_sub(13).min(3);
-            let stage_tw = tw.get(tw_offset..tw_offset + 3 * span).unwrap_or(&[]);
-            tw_offset += 3 * span;
-            mm = match s {
-                0 => stage::<0, N>(scratch, stage_tw, span),
-                1 => stage::<1, N>(scratch, stage_tw, span),
-                2 => stage::<2, N>(scratch, stage_tw, span),
-                _ => stage::<3, N>(scratch, stage_tw, span),
-            };
-            shifts += s as i32;
-            span *= 4;
-        }
-        for (w, s) in words.iter_mut().zip(scratch.iter()) {
-            *w = *s;
-        }
-        shifts
+        let m = copy_and_measure(words, &mut self.scratch);
+        transform::<N>(&self.scratch, words, m)
     }
+
+    /// Out-of-place forward transform: `output` = DFT(`input`) · 2^-shifts, returns `shifts`.
+    /// No copy and no scratch: the first stage gathers straight from `input` (this is the call
+    /// a receiver front makes, reading the samples after the cyclic prefix).
+    pub fn forward_from(input: &[Cq15; N], output: &mut [Cq15; N]) -> i32 {
+        let input = crate::packed::as_words(input);
+        transform::<N>(
+            input,
+            crate::packed::as_words_mut(output),
+            component_bits(input),
+        )
+    }
+}
+
+/// The transform of [`Q15Fft`]: first stage `input → output`, then the radix-4 stages in
+/// place on `output`; `m` is the input's [`component_bits`]. Returns the sum of the shifts.
+fn transform<const N: usize>(input: &[u32; N], output: &mut [u32; N], m: u32) -> i32 {
+    let tw: &[u32] = &Q15Fft::<N>::TWIDDLES;
+    let mut tw_offset = 0usize;
+    let m = m as i32;
+    // First stage: the least shift that keeps its worst case in range; negative shifts scale
+    // a quiet block up to use the whole Q15 range (block floating point).
+    let (mut shifts, mut mm, mut span);
+    if Q15Fft::<N>::LOG2_N % 2 == 1 {
+        shifts = m - 14;
+        mm = with_prep!(shifts, first_radix2::<Ops, N>(input, output));
+        span = 2;
+    } else {
+        shifts = m - 13;
+        mm = first_radix4_stage::<N>(input, output, shifts);
+        span = 4;
+    }
+    while span < N {
+        // |x|² < 2^mm bounds |x| < 2^(mm/2), and i16 parts bound |x| ≤ 2^15.5: four rotated
+        // terms stay below 2^15 after a shift of min(ceil(mm/2) − 13, 3).
+        let s = mm.div_ceil(2).saturating_sub(13).min(3);
+        let stage_tw = tw.get(tw_offset..tw_offset + 3 * span).unwrap_or(&[]);
+        tw_offset += 3 * span;
+        // The last stage's output magnitude is not needed.
+        let last = 4 * span >= N;
+        mm = match (s, last) {
+            (0, false) => stage::<0, true, N>(output, stage_tw, span),
+            (1, false) => stage::<1, true, N>(output, stage_tw, span),
+            (2, false) => stage::<2, true, N>(output, stage_tw, span),
+            (_, false) => stage::<3, true, N>(output, stage_tw, span),
+            (0, true) => stage::<0, false, N>(output, stage_tw, span),
+            (1, true) => stage::<1, false, N>(output, stage_tw, span),
+            (2, true) => stage::<2, false, N>(output, stage_tw, span),
+            (_, true) => stage::<3, false, N>(output, stage_tw, span),
+        };
+        shifts += s as i32;
+        span *= 4;
+    }
+    shifts
+}
+
+/// Copies `src` to `dst` and returns the [`component_bits`] of the data (one pass; LDM/STM
+/// blocks of eight words on the Cortex-M4).
+fn copy_and_measure<const N: usize>(src: &[u32; N], dst: &mut [u32; N]) -> u32 {
+    #[cfg(arm_dsp)]
+    {
+        let mut acc = 0u32;
+        // SAFETY: N is a multiple of 8 (≥ 16); both arrays hold N words; 8 words per iteration
+        // from src to dst, which are distinct borrows.
+        unsafe {
+            core::arch::asm!(
+                "2:",
+                "ldmia r0!, {{r3, r4, r5, r8, r9, r10, r11, r12}}",
+                "stmia r1!, {{r3, r4, r5, r8, r9, r10, r11, r12}}",
+                "eor r3, r3, r3, lsl #1",
+                "eor r4, r4, r4, lsl #1",
+                "eor r5, r5, r5, lsl #1",
+                "eor r8, r8, r8, lsl #1",
+                "eor r9, r9, r9, lsl #1",
+                "eor r10, r10, r10, lsl #1",
+                "eor r11, r11, r11, lsl #1",
+                "eor r12, r12, r12, lsl #1",
+                "orr r3, r3, r4",
+                "orr r5, r5, r8",
+                "orr r9, r9, r10",
+                "orr r11, r11, r12",
+                "orr r3, r3, r5",
+                "orr r9, r9, r11",
+                "orr lr, lr, r3",
+                "orr lr, lr, r9",
+                "cmp r0, r2",
+                "bne 2b",
+                inout("r0") src.as_ptr() => _, inout("r1") dst.as_mut_ptr() => _,
+                in("r2") src.as_ptr().add(N), out("r3") _, out("r4") _, out("r5") _,
+                out("r8") _, out("r9") _, out("r10") _, out("r11") _, out("r12") _,
+                inout("lr") acc, options(nostack));
+        }
+        halves_bits(acc)
+    }
+    #[cfg(not(arm_dsp))]
+    {
+        for (d, s) in dst.iter_mut().zip(src.iter()) {
+            *d = *s;
+        }
+        component_bits(src)
+    }
+}
+
+/// The twiddle-free first radix-4 stage for first-stage shift `s`: the hand-scheduled loop
+/// for the usual down-scaling shifts on the Cortex-M4, the generic kernel otherwise.
+fn first_radix4_stage<const N: usize>(input: &[u32; N], output: &mut [u32; N], s: i32) -> u32 {
+    #[cfg(arm_dsp)]
+    {
+        match s {
+            0 => return first_radix4_dsp::<0, N>(input, output),
+            1 => return first_radix4_dsp::<1, N>(input, output),
+            2 => return first_radix4_dsp::<2, N>(input, output),
+            _ => {}
+        }
+    }
+    with_prep!(s, first_radix4::<Ops, N>(input, output))
+}
+
+/// [`first_radix4`] for shifts 0..=2 as one ARMv7E-M loop (same operations, same bits).
+/// Walks the groups downwards, so the output pointer can use STMDB.
+#[cfg(arm_dsp)]
+fn first_radix4_dsp<const S: u32, const N: usize>(input: &[u32; N], output: &mut [u32; N]) -> u32 {
+    let mut acc = 0u32;
+    let rev_bits = Q15Fft::<N>::LOG2_N - 2;
+    macro_rules! kernel {
+        ($guard:literal) => {
+            // SAFETY: g runs N/4 − 1 … 0; r = rev(g) < N/4, so the loads at r, r + N/4,
+            // r + N/2, r + 3N/4 are inside `input`; STMDB writes words 4g … 4g+3 of `output`
+            // from its end downwards. Distinct borrows; no stack use.
+            unsafe {
+                core::arch::asm!(
+                    "2:",
+                    "subs r1, r1, #1",
+                    "rbit r8, r1",
+                    "lsr r8, r8, r2",
+                    "add r8, r3, r8, lsl #2",
+                    "ldr r9, [r8]",
+                    "ldr r10, [r8, r5]",
+                    "ldr r11, [r8, r4]",
+                    "add r8, r8, r5",
+                    "ldr r12, [r8, r4]",
+                    $guard,
+                    "qadd16 r8, r9, r10",
+                    "qsub16 r9, r9, r10",
+                    "qadd16 r10, r11, r12",
+                    "qsub16 r11, r11, r12",
+                    "shsub16 r12, r8, r10",
+                    "shadd16 r8, r8, r10",
+                    "shasx r10, r9, r11",
+                    "shsax r9, r9, r11",
+                    "mov r11, r10",
+                    "mov r10, r12",
+                    "smuad r12, r8, r8",
+                    "orr lr, lr, r12",
+                    "smuad r12, r9, r9",
+                    "orr lr, lr, r12",
+                    "smuad r12, r10, r10",
+                    "orr lr, lr, r12",
+                    "smuad r12, r11, r11",
+                    "orr lr, lr, r12",
+                    "stmdb r0!, {{r8, r9, r10, r11}}",
+                    "cmp r1, #0",
+                    "bne 2b",
+                    inout("r0") output.as_mut_ptr().add(N) => _, inout("r1") N / 4 => _,
+                    in("r2") 32 - rev_bits, in("r3") input.as_ptr(), in("r4") N,
+                    in("r5") 2 * N, out("r8") _, out("r9") _, out("r10") _, out("r11") _,
+                    out("r12") _, inout("lr") acc, options(nostack))
+            }
+        };
+    }
+    // r4 = N/4 words = N bytes, r5 = N/2 words = 2N bytes. Guards as in packed::Packed::guard:
+    // x0 gets the +1 of the final halving, x1..x3 not.
+    match S {
+        0 => kernel!("qadd16 r10, r10, r10\n qadd16 r11, r11, r11\n qadd16 r12, r12, r12\n qadd16 r9, r9, r9\n mov r8, #0x00010001\n qadd16 r9, r9, r8"),
+        1 => kernel!("mov r8, #0x00010001\n qadd16 r9, r9, r8"),
+        _ => kernel!("mov r8, #0x00010001\n shadd16 r10, r10, r8\n shadd16 r11, r11, r8\n shadd16 r12, r12, r8\n mov r8, #0x00030003\n shadd16 r9, r9, r8"),
+    }
+    bits(acc)
 }
 
 impl<const N: usize> OfdmFft<N> for Q15Fft<N> {
@@ -178,6 +324,11 @@ fn component_bits(words: &[u32]) -> u32 {
     for &w in words {
         acc |= w ^ (w << 1);
     }
+    halves_bits(acc)
+}
+
+/// Folds an OR of `w ^ (w << 1)` over packed words into the component magnitude bits.
+fn halves_bits(acc: u32) -> u32 {
     let halves = ((acc & 0xffff) | (acc >> 16)) >> 1;
     32 - halves.leading_zeros()
 }
@@ -312,28 +463,78 @@ fn butterfly<O: Packed>(a: u32, b: u32, c: u32, d: u32) -> [u32; 4] {
 
 /// A radix-4 stage with twiddles on this target: the hand-scheduled loop on cores with the
 /// DSP extension, the generic one elsewhere (both compute the same bits).
+/// `DETECT = false` skips the output magnitude (last stage).
 #[inline(always)]
-fn stage<const S: u32, const N: usize>(data: &mut [u32; N], tw: &[u32], span: usize) -> u32 {
+fn stage<const S: u32, const DETECT: bool, const N: usize>(
+    data: &mut [u32; N],
+    tw: &[u32],
+    span: usize,
+) -> u32 {
     #[cfg(arm_dsp)]
     {
-        radix4_stage_dsp::<S, N>(data, tw, span)
+        radix4_stage_dsp::<S, DETECT, N>(data, tw, span)
     }
     #[cfg(not(arm_dsp))]
     {
-        radix4_stage::<Ops, S, N>(data, tw, span)
+        radix4_stage::<S, DETECT, N>(data, tw, span)
     }
 }
 
 /// One radix-4 stage with twiddles, in place, merging sub-transforms of length `span`;
 /// `tw` holds the stage's `3·span` twiddle triplets. Returns the squared-magnitude bits of
 /// its output.
+///
+/// Portable form: each word is unpacked once and the butterfly runs on i32 parts with exactly
+/// the semantics of the [`Packed`] operations (`guard`, `cmul`, saturating `qadd16`/`qsub16`,
+/// halving `shadd16`/`shsub16`/`shsax`/`shasx`, `mag2`); the twiddle products need no wrap
+/// because the stage shift bounds them below 2^14 (module docs).
 #[cfg_attr(arm_dsp, allow(dead_code))]
-fn radix4_stage<O: Packed, const S: u32, const N: usize>(data: &mut [u32; N], tw: &[u32], span: usize) -> u32 {
+fn radix4_stage<const S: u32, const DETECT: bool, const N: usize>(
+    data: &mut [u32; N],
+    tw: &[u32],
+    span: usize,
+) -> u32 {
     let mut acc = 0u32;
     // The caller passes spans 2·4^j or 4^j below N with their full twiddle set; anything else
     // is left untouched rather than read out of bounds.
     if span == 0 || !(4 * span).is_power_of_two() || 4 * span > N || tw.len() < 3 * span {
         return 32;
+    }
+    #[inline(always)]
+    fn parts(w: u32) -> (i32, i32) {
+        (w as u16 as i16 as i32, (w as i32) >> 16)
+    }
+    #[inline(always)]
+    fn sat(x: i32) -> i32 {
+        let y = x as i16 as i32;
+        if y == x {
+            x
+        } else if x < 0 {
+            i16::MIN as i32
+        } else {
+            i16::MAX as i32
+        }
+    }
+    #[inline(always)]
+    fn cmul<const S: u32>(x: u32, w: u32) -> (i32, i32) {
+        let ((xr, xi), (wr, wi)) = (parts(x), parts(w));
+        let round = 1i32 << (13 + S);
+        (
+            (xr * wr - xi * wi + round) >> (14 + S),
+            (xr * wi + xi * wr + round) >> (14 + S),
+        )
+    }
+    #[inline(always)]
+    fn guard<const S: u32>(v: i32) -> i32 {
+        match S {
+            0 => sat(sat(2 * v) + 1),
+            1 => sat(v + 1),
+            _ => (v + (1 << (S - 2)) + (1 << (S - 1))) >> (S - 1),
+        }
+    }
+    #[inline(always)]
+    fn pack(re: i32, im: i32) -> u32 {
+        (re as u32 & 0xffff) | ((im as u32) << 16)
     }
     let base = data.as_mut_ptr();
     for block in 0..N / (4 * span) {
@@ -345,18 +546,28 @@ fn radix4_stage<O: Packed, const S: u32, const N: usize>(data: &mut [u32; N], tw
             let end = p.add(span);
             let mut t = tw.as_ptr();
             while p < end {
-                let (x0, x1, x2, x3) = (*p, *p.add(span), *p.add(2 * span), *p.add(3 * span));
                 let (w1, w2, w3) = (*t, *t.add(1), *t.add(2));
-                let a = O::guard::<S, true>(x0);
-                let b = O::cmul::<S>(x1, w2);
-                let c = O::cmul::<S>(x2, w1);
-                let d = O::cmul::<S>(x3, w3);
-                let [y0, y1, y2, y3] = butterfly::<O>(a, b, c, d);
-                acc |= O::mag2(y0) | O::mag2(y1) | O::mag2(y2) | O::mag2(y3);
-                *p = y0;
-                *p.add(span) = y1;
-                *p.add(2 * span) = y2;
-                *p.add(3 * span) = y3;
+                let (br, bi) = cmul::<S>(*p.add(span), w2);
+                let (cr, ci) = cmul::<S>(*p.add(2 * span), w1);
+                let (dr, di) = cmul::<S>(*p.add(3 * span), w3);
+                let (x0r, x0i) = parts(*p);
+                let (ar, ai) = (guard::<S>(x0r), guard::<S>(x0i));
+                let (t0r, t0i) = (sat(ar + br), sat(ai + bi));
+                let (t1r, t1i) = (sat(ar - br), sat(ai - bi));
+                let (t2r, t2i) = (sat(cr + dr), sat(ci + di));
+                let (t3r, t3i) = (sat(cr - dr), sat(ci - di));
+                let (y0r, y0i) = ((t0r + t2r) >> 1, (t0i + t2i) >> 1);
+                let (y2r, y2i) = ((t0r - t2r) >> 1, (t0i - t2i) >> 1);
+                let (y1r, y1i) = ((t1r + t3i) >> 1, (t1i - t3r) >> 1);
+                let (y3r, y3i) = ((t1r - t3i) >> 1, (t1i + t3r) >> 1);
+                if DETECT {
+                    let m2 = |r: i32, i: i32| ((r * r) as u32).wrapping_add((i * i) as u32);
+                    acc |= m2(y0r, y0i) | m2(y1r, y1i) | m2(y2r, y2i) | m2(y3r, y3i);
+                }
+                *p = pack(y0r, y0i);
+                *p.add(span) = pack(y1r, y1i);
+                *p.add(2 * span) = pack(y2r, y2i);
+                *p.add(3 * span) = pack(y3r, y3i);
                 p = p.add(1);
                 t = t.add(3);
             }
@@ -369,7 +580,11 @@ fn radix4_stage<O: Packed, const S: u32, const N: usize>(data: &mut [u32; N], tw
 /// operations in the same order (see [`crate::packed::Dsp`] for each), so the same bits, in
 /// about 46 instructions per butterfly (no spills: 12 registers).
 #[cfg(arm_dsp)]
-fn radix4_stage_dsp<const S: u32, const N: usize>(data: &mut [u32; N], tw: &[u32], span: usize) -> u32 {
+fn radix4_stage_dsp<const S: u32, const DETECT: bool, const N: usize>(
+    data: &mut [u32; N],
+    tw: &[u32],
+    span: usize,
+) -> u32 {
     if span == 0 || !(4 * span).is_power_of_two() || 4 * span > N || tw.len() < 3 * span {
         return 32;
     }
@@ -385,6 +600,13 @@ fn radix4_stage_dsp<const S: u32, const N: usize>(data: &mut [u32; N], tw: &[u32
             let end = p.add(span);
             macro_rules! kernel {
                 ($cmul_im:literal, $pk:literal, $round:literal, $guard:literal) => {
+                    if DETECT {
+                        kernel!($cmul_im, $pk, $round, $guard, "smuad r9, r5, r5\n orr lr, lr, r9\n smuad r9, r10, r10\n orr lr, lr, r9\n smuad r9, r8, r8\n orr lr, lr, r9\n smuad r9, r11, r11\n orr lr, lr, r9")
+                    } else {
+                        kernel!($cmul_im, $pk, $round, $guard, "")
+                    }
+                };
+                ($cmul_im:literal, $pk:literal, $round:literal, $guard:literal, $detect:literal) => {
                     core::arch::asm!(
                         "2:",
                         "ldmia r3!, {{r4, r5, r8}}",
@@ -421,18 +643,10 @@ fn radix4_stage_dsp<const S: u32, const N: usize>(data: &mut [u32; N], tw: &[u32
                         "shsax r10, r9, r4",
                         "shasx r11, r9, r4",
                         "str r10, [r0, r2]",
-                        "str r8, [r1]",
                         "str r11, [r1, r2]",
-                        "smuad r9, r5, r5",
-                        "orr lr, lr, r9",
-                        "smuad r9, r10, r10",
-                        "orr lr, lr, r9",
-                        "smuad r9, r8, r8",
-                        "orr lr, lr, r9",
-                        "smuad r9, r11, r11",
-                        "orr lr, lr, r9",
+                        "str r8, [r1], #4",
+                        $detect,
                         "str r5, [r0], #4",
-                        "add r1, r1, #4",
                         "cmp r0, r12",
                         "bne 2b",
                         inout("r0") p => _, inout("r1") q => _, in("r2") span * 4,

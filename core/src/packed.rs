@@ -51,6 +51,12 @@ pub fn as_words_mut<const N: usize>(buf: &mut [Cq15; N]) -> &mut [u32; N] {
     unsafe { &mut *(buf as *mut [Cq15; N]).cast::<[u32; N]>() }
 }
 
+/// Views complex Q15 samples as packed words (shared).
+pub fn as_words<const N: usize>(buf: &[Cq15; N]) -> &[u32; N] {
+    // SAFETY: as for `as_words_mut`.
+    unsafe { &*(buf as *const [Cq15; N]).cast::<[u32; N]>() }
+}
+
 #[inline(always)]
 const fn lo(w: u32) -> i32 {
     w as u16 as i16 as i32

@@ -28,7 +28,7 @@ pub extern "C" fn probe_start() {
 #[inline(never)]
 pub extern "C" fn probe_stop() {
     // SAFETY: as in `probe_start`.
-    unsafe { write_volatile(addr_of_mut!(PROBE_MARK), 0x53_544f_50) } // "STOP"
+    unsafe { write_volatile(addr_of_mut!(PROBE_MARK), 0x5354_4f50) } // "STOP"
 }
 
 /// Pattern painted below the stack pointer before a region; any other value found afterwards
@@ -113,14 +113,20 @@ pub fn fill<T>(case_index: usize, out: &mut [T], mut put: impl FnMut(&mut T, i16
     let Some(case) = vectors_gen::CASES.get(case_index) else {
         return;
     };
-    vectors_gen::for_each_sample(case.kind, vectors_gen::seed(case_index, n), n, |i, re, im| {
-        if let Some(slot) = out.get_mut(i) {
-            put(slot, re, im);
-        }
-    });
+    vectors_gen::for_each_sample(
+        case.kind,
+        vectors_gen::seed(case_index, n),
+        n,
+        |i, re, im| {
+            if let Some(slot) = out.get_mut(i) {
+                put(slot, re, im);
+            }
+        },
+    );
 }
 
 /// A `&mut [T; N]` view of the first `N` elements of `buf` (None when `buf` is shorter).
 pub fn prefix<T, const N: usize>(buf: &mut [T]) -> Option<&mut [T; N]> {
-    buf.get_mut(..N).and_then(|s| <&mut [T; N]>::try_from(s).ok())
+    buf.get_mut(..N)
+        .and_then(|s| <&mut [T; N]>::try_from(s).ok())
 }

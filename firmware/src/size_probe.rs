@@ -6,7 +6,6 @@
 // test-signal generator: the input buffer is a zeroed static behind `black_box`. The panic
 // handler references an undefined symbol, as in `panic_free`.
 
-
 use core::hint::black_box;
 use core::ptr::addr_of_mut;
 

@@ -64,7 +64,11 @@ pub fn tail(stdout: &str, stderr: &str) -> String {
         let lines: Vec<&str> = s.lines().collect();
         lines[lines.len().saturating_sub(15)..].join("\n    ")
     };
-    format!("\n  stdout:\n    {}\n  stderr:\n    {}", pick(stdout), pick(stderr))
+    format!(
+        "\n  stdout:\n    {}\n  stderr:\n    {}",
+        pick(stdout),
+        pick(stderr)
+    )
 }
 
 fn have(program: &str) -> bool {
@@ -182,7 +186,9 @@ pub fn build_firmware(
     if status.success() {
         Ok(())
     } else {
-        Err(format!("firmware build for {triple} failed (see cargo's output above)"))
+        Err(format!(
+            "firmware build for {triple} failed (see cargo's output above)"
+        ))
     }
 }
 
@@ -268,7 +274,9 @@ fn nm_program() -> String {
     std::env::var("NM").unwrap_or_else(|_| "nm".into())
 }
 
-fn nm_lines(elf: &Path, demangle: bool) -> Result<Vec<(u64, Option<u64>, char, String)>, String> {
+/// One `nm -S -p [-C]` listing: defined symbols in symbol-table order (`demangled` holds the
+/// name as listed).
+fn nm_lines(elf: &Path, demangle: bool) -> Result<Vec<Symbol>, String> {
     let mut cmd = Command::new(nm_program());
     // -p: symbol-table order, so the raw and the demangled listings line up.
     cmd.args(["-S", "-p"]);
@@ -277,32 +285,34 @@ fn nm_lines(elf: &Path, demangle: bool) -> Result<Vec<(u64, Option<u64>, char, S
     }
     let out = run(cmd.arg(elf))?;
     if out.status != Some(0) {
-        return Err(format!("nm {} failed: {}", elf.display(), out.stderr.trim()));
+        return Err(format!(
+            "nm {} failed: {}",
+            elf.display(),
+            out.stderr.trim()
+        ));
     }
     let mut v = Vec::new();
     for line in out.stdout.lines() {
         let parts: Vec<&str> = line.splitn(4, ' ').collect();
-        let parsed = match parts.as_slice() {
-            [a, s, k, name] if s.len() == a.len() && k.len() == 1 => Some((a, Some(*s), k, *name)),
-            [a, k, name] if k.len() == 1 => Some((a, None, k, *name)),
+        let (a, s, k, name) = match parts.as_slice() {
+            [a, s, k, name] if s.len() == a.len() && k.len() == 1 => (*a, Some(*s), *k, *name),
+            [a, k, name] if k.len() == 1 => (*a, None, *k, *name),
+            // A demangled name with spaces and no size.
             [a, k, _, _] if k.len() == 1 => {
-                // A demangled name with spaces and no size.
-                Some((a, None, k, line.splitn(3, ' ').nth(2).unwrap_or("")))
+                (*a, None, *k, line.splitn(3, ' ').nth(2).unwrap_or(""))
             }
-            _ => None,
-        };
-        let Some((a, s, k, name)) = parsed else {
-            continue;
+            _ => continue,
         };
         let Ok(addr) = u64::from_str_radix(a, 16) else {
             continue;
         };
-        let size = match s {
-            Some(s) => u64::from_str_radix(s, 16).ok(),
-            None => None,
-        };
-        let kind = k.chars().next().unwrap_or('?');
-        v.push((addr, size, kind, name.to_string()));
+        v.push(Symbol {
+            addr,
+            size: s.and_then(|s| u64::from_str_radix(s, 16).ok()).unwrap_or(0),
+            kind: k.chars().next().unwrap_or('?'),
+            name: name.to_string(),
+            demangled: name.to_string(),
+        });
     }
     Ok(v)
 }
@@ -311,18 +321,18 @@ fn nm_lines(elf: &Path, demangle: bool) -> Result<Vec<(u64, Option<u64>, char, S
 pub fn nm_symbols(elf: &Path) -> Result<Vec<Symbol>, String> {
     let raw = nm_lines(elf, false)?;
     let dem = nm_lines(elf, true)?;
-    if raw.len() != dem.len() {
-        return Err(format!("nm: raw and demangled listings of {} differ", elf.display()));
+    if raw.len() != dem.len() || raw.iter().zip(&dem).any(|(r, d)| r.addr != d.addr) {
+        return Err(format!(
+            "nm: raw and demangled listings of {} differ",
+            elf.display()
+        ));
     }
     Ok(raw
         .into_iter()
         .zip(dem)
-        .map(|((addr, size, kind, name), (_, _, _, demangled))| Symbol {
-            addr,
-            size: size.unwrap_or(0),
-            kind,
-            name,
-            demangled,
+        .map(|(r, d)| Symbol {
+            demangled: d.name,
+            ..r
         })
         .collect())
 }
@@ -349,7 +359,10 @@ mod tests {
 
     #[test]
     fn record_fields() {
-        let r = parse_records("case core=cortex-m0 stage=fft_f32 n=64 region=1 stack=352\ncased x=1\n", "case");
+        let r = parse_records(
+            "case core=cortex-m0 stage=fft_f32 n=64 region=1 stack=352\ncased x=1\n",
+            "case",
+        );
         assert_eq!(r.len(), 1);
         assert_eq!(r[0]["stage"], "fft_f32");
         assert_eq!(r[0]["stack"], "352");

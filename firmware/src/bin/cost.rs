@@ -49,7 +49,11 @@ fn report(stage: &str, n: usize, m: Measured, failures: &mut u32) {
         m.stack_bytes
     );
     if m.overflowed {
-        hprintln!("error: {} n={}: stack reached the bottom of the painted area", stage, n);
+        hprintln!(
+            "error: {} n={}: stack reached the bottom of the painted area",
+            stage,
+            n
+        );
         *failures += 1;
     }
 }

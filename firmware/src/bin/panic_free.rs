@@ -20,7 +20,7 @@ use flatbin::{Cf32, Modulation, Numerology, NumerologyParams};
 use flatbin_firmware::{exit, prefix};
 
 #[cfg(feature = "q15")]
-use flatbin::{fft_q15::Q15Fft, fixed::Cq15};
+use flatbin::{fft_q15::Q15Fft, fixed::Cq15, transmit_q15::TransmitterQ15};
 
 #[cfg(not(feature = "locate-panics"))]
 extern "C" {
@@ -66,7 +66,7 @@ static mut BITS: [u8; MAX_BITS] = [0; MAX_BITS];
 static mut LLRS: [f32; 64] = [0.0; 64];
 static mut LLRS_I8: [i8; 64] = [0; 64];
 #[cfg(feature = "q15")]
-static mut BUF_Q15: [Cq15; MAX_N] = [Cq15 { re: 0, im: 0 }; MAX_N];
+static mut BUF_Q15: [Cq15; MAX_SYMBOL] = [Cq15 { re: 0, im: 0 }; MAX_SYMBOL];
 
 struct Buffers {
     samples: &'static mut [Cf32; MAX_SYMBOL],
@@ -75,7 +75,7 @@ struct Buffers {
     llrs: &'static mut [f32; 64],
     llrs_i8: &'static mut [i8; 64],
     #[cfg(feature = "q15")]
-    q15: &'static mut [Cq15; MAX_N],
+    q15: &'static mut [Cq15; MAX_SYMBOL],
 }
 
 fn params(n: usize) -> NumerologyParams {
@@ -123,6 +123,13 @@ fn at_size<const N: usize>(b: &mut Buffers) {
         sink(Q15Fft::<N>::new().forward(black_box(&mut *x)));
         sink(Q15Fft::<N>::new().inverse(black_box(x)));
     }
+    #[cfg(feature = "q15")]
+    if let Ok(mut tx) = TransmitterQ15::<N>::new(nu) {
+        let bits_len = black_box(tx.bits_per_ofdm_symbol(modulation, symbol));
+        let bits = b.bits.get(..bits_len).unwrap_or_default();
+        let out = b.q15.get_mut(..len).unwrap_or_default();
+        sink(tx.modulate(modulation, black_box(bits), symbol, black_box(out)));
+    }
 }
 
 /// The demapper entry points (size-independent).
@@ -132,7 +139,12 @@ fn demapper(b: &mut Buffers) {
         let modulation = black_box(modulation);
         let y = black_box(Cf32::new(0.3, -0.7));
         sink(hard_decision(modulation, y, black_box(&mut b.bits[..])));
-        sink(llr_max_log(modulation, y, black_box(10.0), black_box(&mut b.llrs[..])));
+        sink(llr_max_log(
+            modulation,
+            y,
+            black_box(10.0),
+            black_box(&mut b.llrs[..]),
+        ));
         let count = black_box(4usize);
         let ys = black_box(&b.bins[..]).get(..count).unwrap_or_default();
         let weights = black_box([1.0f32; 4]);

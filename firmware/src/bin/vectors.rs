@@ -11,7 +11,8 @@
 //!
 //! `in` is the FNV-1a hash of the input (re, im as i16, in order), so the host can tell a
 //! generator mismatch from an FFT mismatch. Words: `fft_f32` prints two per sample (the f32
-//! bits of re, then im); `fft_q15` prints one per sample, `(re as u16) << 16 | (im as u16)`.
+//! bits of re, then im); `fft_q15` prints one per sample, `re as u16 | (im as u16) << 16`
+//! (the packed layout of `flatbin::fixed::Cq15`).
 
 #![no_std]
 #![no_main]
@@ -124,7 +125,7 @@ fn fft_q15<const N: usize>(buf: &mut [Cq15], failures: &mut u32) {
         );
         print_words(
             x.iter()
-                .map(|v| (u32::from(v.re as u16) << 16) | u32::from(v.im as u16)),
+                .map(|v| u32::from(v.re as u16) | (u32::from(v.im as u16) << 16)),
         );
     }
 }

@@ -8,6 +8,8 @@
 //!
 //! Levels are in dBFS: total complex power (re² + im²) relative to a full-scale complex
 //! sinusoid, i.e. power 1.0 with Q15 samples read as fractions `v / 32768`.
+//!
+//! Its checks live in `xtask/src/generator_tests.rs` (a host workspace member, so CI runs them).
 
 #![no_std]
 #![deny(missing_docs)]
@@ -74,7 +76,11 @@ pub struct XorShift64(u64);
 impl XorShift64 {
     /// A generator; a zero seed is replaced by a fixed nonzero one.
     pub fn new(seed: u64) -> Self {
-        Self(if seed == 0 { 0x2545_f491_4f6c_dd1d } else { seed })
+        Self(if seed == 0 {
+            0x2545_f491_4f6c_dd1d
+        } else {
+            seed
+        })
     }
 
     /// Next 64-bit output.
@@ -137,7 +143,11 @@ pub fn for_each_sample(kind: Kind, seed: u64, n: usize, mut emit: impl FnMut(usi
                 // Integer phase index keeps the argument in [0, 2π): exact for any n.
                 let k = (bin.wrapping_mul(i)).checked_rem(n).unwrap_or(0);
                 let theta = 2.0 * core::f64::consts::PI * k as f64 / n as f64;
-                emit(i, to_q15(CLIP * libm::cos(theta)), to_q15(CLIP * libm::sin(theta)));
+                emit(
+                    i,
+                    to_q15(CLIP * libm::cos(theta)),
+                    to_q15(CLIP * libm::sin(theta)),
+                );
             }
         }
     }
@@ -165,65 +175,5 @@ impl Fnv1a32 {
     /// The hash so far.
     pub fn finish(&self) -> u32 {
         self.0
-    }
-}
-
-#[cfg(test)]
-mod tests {
-    extern crate std;
-    use super::*;
-
-    #[test]
-    fn xorshift_first_output() {
-        // Worked by hand from the three shift steps of Marsaglia (2003) for state 1:
-        // x ^= x<<13 → 0x2001; x ^= x>>7 → 0x2041; x ^= x<<17 → 0x4082_2041.
-        assert_eq!(XorShift64::new(1).next_u64(), 0x4082_2041);
-    }
-
-    #[test]
-    fn fnv1a_empty_and_known() {
-        // The empty hash is the offset basis; FNV-1a-32("a") = 0xe40c292c is the published
-        // test value of the FNV reference (Fowler, Noll, Vo). i16 0x0061 feeds the bytes
-        // 0x61, 0x00; the zero byte only multiplies by the prime.
-        let mut h = Fnv1a32::default();
-        assert_eq!(h.finish(), 0x811c_9dc5);
-        h.push_i16(0x0061);
-        assert_eq!(h.finish(), 0xe40c_292cu32.wrapping_mul(0x0100_0193));
-    }
-
-    #[test]
-    fn gaussian_power_matches_its_level() {
-        // Mean of |x|² over 4096 samples within 4·s/sqrt(n) of 10^(-12/10) (s = P for the
-        // exponential distribution of |x|²: common practice for a chi-square-2 mean).
-        let n = 4096;
-        let mut sum = 0.0f64;
-        for_each_sample(Kind::Gaussian { dbfs: -12 }, seed(0, n), n, |_, re, im| {
-            let (re, im) = (f64::from(re) / FULL_SCALE, f64::from(im) / FULL_SCALE);
-            sum += re * re + im * im;
-        });
-        let p = libm::pow(10.0, -1.2);
-        let mean = sum / n as f64;
-        assert!((mean - p).abs() < 4.0 * p / libm::sqrt(n as f64), "{mean} vs {p}");
-    }
-
-    #[test]
-    fn tone_is_full_scale_on_its_bin() {
-        // Sample 0 is (CLIP, 0); sample N/4 of bin 1 is (0, CLIP) (cos/sin at 0 and π/2).
-        let mut v = [(0i16, 0i16); 16];
-        for_each_sample(Kind::Tone { bin: 1 }, 0, 16, |i, re, im| v[i] = (re, im));
-        assert_eq!(v[0], (32767, 0));
-        assert_eq!(v[4], (0, 32767));
-        assert_eq!(v[8], (-32767, 0));
-    }
-
-    #[test]
-    fn full_scale_gaussian_clips() {
-        // At 0 dBFS σ = 23170 LSB per component, so |v| ≥ 32767 has probability
-        // 2·Q(1.414) ≈ 0.157 (normal tail): some samples must sit on the clip.
-        let mut clipped = 0;
-        for_each_sample(Kind::Gaussian { dbfs: 0 }, seed(2, 1024), 1024, |_, re, im| {
-            clipped += usize::from(re.abs() == 32767) + usize::from(im.abs() == 32767);
-        });
-        assert!(clipped > 200 && clipped < 450, "{clipped}");
     }
 }
