@@ -45,7 +45,8 @@
 
 use crate::fft::OfdmFft;
 use crate::fixed::Cq15;
-use crate::packed::{Ops, Packed};
+#[cfg(doc)]
+use crate::packed::Packed;
 
 /// Q15 block-floating-point FFT of size `N` (power of two, 16..=4096). Holds one scratch
 /// block of `N` words (`4·N` bytes); twiddles live in flash.
@@ -112,7 +113,7 @@ fn transform<const N: usize>(input: &[u32; N], output: &mut [u32; N], m: u32) ->
     let (mut shifts, mut mm, mut span);
     if Q15Fft::<N>::LOG2_N % 2 == 1 {
         shifts = m - 14;
-        mm = with_prep!(shifts, first_radix2::<Ops, N>(input, output));
+        mm = with_prep!(shifts, first_radix2::<N>(input, output));
         span = 2;
     } else {
         shifts = m - 13;
@@ -202,7 +203,7 @@ fn first_radix4_stage<const N: usize>(input: &[u32; N], output: &mut [u32; N], s
             _ => {}
         }
     }
-    with_prep!(s, first_radix4::<Ops, N>(input, output))
+    with_prep!(s, first_radix4::<N>(input, output))
 }
 
 /// [`first_radix4`] for shifts 0..=2 as one ARMv7E-M loop (same operations, same bits).
@@ -292,25 +293,20 @@ impl<const N: usize> OfdmFft<N> for Q15Fft<N> {
     }
 }
 
-/// Calls a first-stage kernel with the input preparation for shift `$s`: scale down with a
-/// guard bit for `$s ≥ 0` (at most 2 for a first stage), scale up by `2^(1−$s)` (which keeps
-/// the guard bit) for `$s < 0`. The closure gets the word and the rounding constant (0 or 1).
+/// Calls a first-stage kernel with the per-part input preparation for shift `$s`
+/// ([`Packed::guard`] for `$s` 0..=2, [`Packed::up`] by `2^(1−$s)` below 0, which keeps the
+/// guard bit). The closure gets the part and the rounding constant (0 or 1). A negative shift
+/// is chosen only when the scaled part fits, so up-scaling needs no saturation.
 macro_rules! with_prep {
-    ($s:expr, $f:ident :: < $ops:ty, $n:ident > ( $($arg:expr),* )) => {
+    ($s:expr, $f:ident :: < $n:ident > ( $($arg:expr),* )) => {
         match $s {
             s if s < 0 => {
                 let k = (1 - s) as u32;
-                $f::<$ops, $n, _>($($arg,)* |a, p| <$ops>::up(a, k, p))
+                $f::<$n, _>($($arg,)* |v, p| (v << k) + p)
             }
-            0 => $f::<$ops, $n, _>($($arg,)* |a, p| {
-                if p == 1 { <$ops>::guard::<0, true>(a) } else { <$ops>::guard::<0, false>(a) }
-            }),
-            1 => $f::<$ops, $n, _>($($arg,)* |a, p| {
-                if p == 1 { <$ops>::guard::<1, true>(a) } else { <$ops>::guard::<1, false>(a) }
-            }),
-            _ => $f::<$ops, $n, _>($($arg,)* |a, p| {
-                if p == 1 { <$ops>::guard::<2, true>(a) } else { <$ops>::guard::<2, false>(a) }
-            }),
+            0 => $f::<$n, _>($($arg,)* |v, p| sat(sat(2 * v) + p)),
+            1 => $f::<$n, _>($($arg,)* |v, p| sat(v + p)),
+            _ => $f::<$n, _>($($arg,)* |v, p| (v + 1 + 2 * p) >> 1),
         }
     };
 }
@@ -387,11 +383,75 @@ impl Reversed {
     }
 }
 
+// ---- i32 forms of the packed operations (portable kernels) ----
+
+/// The real and imaginary parts of a packed word.
+#[inline(always)]
+fn parts(w: u32) -> (i32, i32) {
+    (w as u16 as i16 as i32, (w as i32) >> 16)
+}
+/// Saturates to the i16 range.
+#[inline(always)]
+#[cfg(not(target_arch = "arm"))]
+fn sat(x: i32) -> i32 {
+    x.clamp(i16::MIN as i32, i16::MAX as i32)
+}
+/// Thumb: three instructions when no saturation is needed (the usual case).
+#[inline(always)]
+#[cfg(target_arch = "arm")]
+fn sat(x: i32) -> i32 {
+    let y: i32;
+    // SAFETY: register-only instructions; the rare path builds ±saturation as
+    // (x >> 31) ^ 0x7fff.
+    unsafe {
+        core::arch::asm!(
+            "sxth {y}, {x}",
+            "cmp {y}, {x}",
+            "beq 2f",
+            "asrs {y}, {x}, #31",
+            "movs {t}, #127",
+            "lsls {t}, {t}, #8",
+            "adds {t}, #255",
+            "eors {y}, {t}",
+            "2:",
+            x = in(reg) x, y = out(reg) y, t = out(reg) _, options(pure, nomem, nostack));
+    }
+    y
+}
+/// [`Packed::cmul`] on parts.
+#[inline(always)]
+fn cmul<const S: u32>(x: u32, w: u32) -> (i32, i32) {
+    let ((xr, xi), (wr, wi)) = (parts(x), parts(w));
+    let round = 1i32 << (13 + S);
+    (
+        (xr * wr - xi * wi + round) >> (14 + S),
+        (xr * wi + xi * wr + round) >> (14 + S),
+    )
+}
+/// [`Packed::guard`] with the +1 on one part.
+#[inline(always)]
+fn guard<const S: u32>(v: i32) -> i32 {
+    match S {
+        0 => sat(sat(2 * v) + 1),
+        1 => sat(v + 1),
+        _ => (v + (1 << (S - 2)) + (1 << (S - 1))) >> (S - 1),
+    }
+}
+/// Packs two parts (low 16 bits each).
+#[inline(always)]
+fn pack(re: i32, im: i32) -> u32 {
+    (re as u32 & 0xffff) | ((im as u32) << 16)
+}
+/// Squared magnitude as [`Packed::mag2`] computes it.
+#[inline(always)]
+fn mag2(re: i32, im: i32) -> u32 {
+    ((re * re) as u32).wrapping_add((im * im) as u32)
+}
+
 /// First stage, radix-2 (odd log2 N): gathers bit-reversed pairs `x[r], x[r + N/2]` from
-/// `input` and writes `(a + b, a − b)`, scaled as `prep` prepares them, to consecutive words
-/// of `out`. Returns the
-/// squared-magnitude bits of the output.
-fn first_radix2<O: Packed, const N: usize, P: Fn(u32, u32) -> u32>(
+/// `input` and writes `(a + b, a − b)`, scaled as `prep` prepares the parts, to consecutive
+/// words of `out`. Returns the squared-magnitude bits of the output.
+fn first_radix2<const N: usize, P: Fn(i32, i32) -> i32>(
     input: &[u32; N],
     out: &mut [u32; N],
     prep: P,
@@ -402,13 +462,15 @@ fn first_radix2<O: Packed, const N: usize, P: Fn(u32, u32) -> u32>(
     let mut rev = Reversed::new(Q15Fft::<N>::LOG2_N - 1);
     for pair in out.chunks_exact_mut(2) {
         let r = rev.next() & mask;
-        let a = prep(lo.get(r).copied().unwrap_or(0), 1);
-        let b = prep(hi.get(r).copied().unwrap_or(0), 0);
-        let (y0, y1) = (O::shadd16(a, b), O::shsub16(a, b));
-        acc |= O::mag2(y0) | O::mag2(y1);
+        let (ar, ai) = parts(lo.get(r).copied().unwrap_or(0));
+        let (br, bi) = parts(hi.get(r).copied().unwrap_or(0));
+        let (ar, ai, br, bi) = (prep(ar, 1), prep(ai, 1), prep(br, 0), prep(bi, 0));
+        let (y0r, y0i) = ((ar + br) >> 1, (ai + bi) >> 1);
+        let (y1r, y1i) = ((ar - br) >> 1, (ai - bi) >> 1);
+        acc |= mag2(y0r, y0i) | mag2(y1r, y1i);
         if let [p0, p1] = pair {
-            *p0 = y0;
-            *p1 = y1;
+            *p0 = pack(y0r, y0i);
+            *p1 = pack(y1r, y1i);
         }
     }
     bits(acc)
@@ -416,8 +478,8 @@ fn first_radix2<O: Packed, const N: usize, P: Fn(u32, u32) -> u32>(
 
 /// First stage, radix-4 without twiddles (even log2 N): gathers `x[r], x[r + N/2],
 /// x[r + N/4], x[r + 3N/4]` (the bit-reversed order of four consecutive inputs) and writes the
-/// butterfly, scaled as `prep` prepares the inputs, to four consecutive words of `out`.
-fn first_radix4<O: Packed, const N: usize, P: Fn(u32, u32) -> u32>(
+/// butterfly, scaled as `prep` prepares the parts, to four consecutive words of `out`.
+fn first_radix4<const N: usize, P: Fn(i32, i32) -> i32>(
     input: &[u32; N],
     out: &mut [u32; N],
     prep: P,
@@ -431,35 +493,33 @@ fn first_radix4<O: Packed, const N: usize, P: Fn(u32, u32) -> u32>(
     let mut rev = Reversed::new(Q15Fft::<N>::LOG2_N - 2);
     for group in out.chunks_exact_mut(4) {
         let r = rev.next() & mask;
-        let load = |s: &[u32]| s.get(r).copied().unwrap_or(0);
-        let a = prep(load(x0), 1);
-        let b = prep(load(x1), 0);
-        let c = prep(load(x2), 0);
-        let d = prep(load(x3), 0);
-        let y = butterfly::<O>(a, b, c, d);
-        acc |= O::mag2(y[0]) | O::mag2(y[1]) | O::mag2(y[2]) | O::mag2(y[3]);
-        for (o, v) in group.iter_mut().zip(y) {
-            *o = v;
+        let load = |s: &[u32], p: i32| {
+            let (re, im) = parts(s.get(r).copied().unwrap_or(0));
+            (prep(re, p), prep(im, p))
+        };
+        let (ar, ai) = load(x0, 1);
+        let (br, bi) = load(x1, 0);
+        let (cr, ci) = load(x2, 0);
+        let (dr, di) = load(x3, 0);
+        let (t0r, t0i) = (sat(ar + br), sat(ai + bi));
+        let (t1r, t1i) = (sat(ar - br), sat(ai - bi));
+        let (t2r, t2i) = (sat(cr + dr), sat(ci + di));
+        let (t3r, t3i) = (sat(cr - dr), sat(ci - di));
+        let (y0r, y0i) = ((t0r + t2r) >> 1, (t0i + t2i) >> 1);
+        let (y2r, y2i) = ((t0r - t2r) >> 1, (t0i - t2i) >> 1);
+        let (y1r, y1i) = ((t1r + t3i) >> 1, (t1i - t3r) >> 1);
+        let (y3r, y3i) = ((t1r - t3i) >> 1, (t1i + t3r) >> 1);
+        acc |= mag2(y0r, y0i) | mag2(y1r, y1i) | mag2(y2r, y2i) | mag2(y3r, y3i);
+        if let [o0, o1, o2, o3] = group {
+            *o0 = pack(y0r, y0i);
+            *o1 = pack(y1r, y1i);
+            *o2 = pack(y2r, y2i);
+            *o3 = pack(y3r, y3i);
         }
     }
     bits(acc)
 }
 
-/// The radix-4 combination of prepared terms (module docs), halving at the end:
-/// `[(a+b)+(c+d), (a−b)−j(c−d), (a+b)−(c+d), (a−b)+j(c−d)] / 2`.
-#[inline(always)]
-fn butterfly<O: Packed>(a: u32, b: u32, c: u32, d: u32) -> [u32; 4] {
-    let t0 = O::qadd16(a, b);
-    let t1 = O::qsub16(a, b);
-    let t2 = O::qadd16(c, d);
-    let t3 = O::qsub16(c, d);
-    [
-        O::shadd16(t0, t2),
-        O::shsax(t1, t3),
-        O::shsub16(t0, t2),
-        O::shasx(t1, t3),
-    ]
-}
 
 /// A radix-4 stage with twiddles on this target: the hand-scheduled loop on cores with the
 /// DSP extension, the generic one elsewhere (both compute the same bits).
@@ -500,42 +560,6 @@ fn radix4_stage<const S: u32, const DETECT: bool, const N: usize>(
     if span == 0 || !(4 * span).is_power_of_two() || 4 * span > N || tw.len() < 3 * span {
         return 32;
     }
-    #[inline(always)]
-    fn parts(w: u32) -> (i32, i32) {
-        (w as u16 as i16 as i32, (w as i32) >> 16)
-    }
-    #[inline(always)]
-    fn sat(x: i32) -> i32 {
-        let y = x as i16 as i32;
-        if y == x {
-            x
-        } else if x < 0 {
-            i16::MIN as i32
-        } else {
-            i16::MAX as i32
-        }
-    }
-    #[inline(always)]
-    fn cmul<const S: u32>(x: u32, w: u32) -> (i32, i32) {
-        let ((xr, xi), (wr, wi)) = (parts(x), parts(w));
-        let round = 1i32 << (13 + S);
-        (
-            (xr * wr - xi * wi + round) >> (14 + S),
-            (xr * wi + xi * wr + round) >> (14 + S),
-        )
-    }
-    #[inline(always)]
-    fn guard<const S: u32>(v: i32) -> i32 {
-        match S {
-            0 => sat(sat(2 * v) + 1),
-            1 => sat(v + 1),
-            _ => (v + (1 << (S - 2)) + (1 << (S - 1))) >> (S - 1),
-        }
-    }
-    #[inline(always)]
-    fn pack(re: i32, im: i32) -> u32 {
-        (re as u32 & 0xffff) | ((im as u32) << 16)
-    }
     let base = data.as_mut_ptr();
     for block in 0..N / (4 * span) {
         // SAFETY: blocks of 4·span words tile [0, N): block·4·span + 3·span + k < N for
@@ -561,8 +585,7 @@ fn radix4_stage<const S: u32, const DETECT: bool, const N: usize>(
                 let (y1r, y1i) = ((t1r + t3i) >> 1, (t1i - t3r) >> 1);
                 let (y3r, y3i) = ((t1r - t3i) >> 1, (t1i + t3r) >> 1);
                 if DETECT {
-                    let m2 = |r: i32, i: i32| ((r * r) as u32).wrapping_add((i * i) as u32);
-                    acc |= m2(y0r, y0i) | m2(y1r, y1i) | m2(y2r, y2i) | m2(y3r, y3i);
+                    acc |= mag2(y0r, y0i) | mag2(y1r, y1i) | mag2(y2r, y2i) | mag2(y3r, y3i);
                 }
                 *p = pack(y0r, y0i);
                 *p.add(span) = pack(y1r, y1i);
@@ -752,6 +775,43 @@ const fn taylor_cos_sin(x: f64) -> (f64, f64) {
 #[cfg(test)]
 mod tests {
     use super::*;
+    use crate::packed::{Packed, Portable};
+
+    #[test]
+    fn part_helpers_match_the_packed_reference() {
+        // The portable kernels compute on i32 parts; the packed operations are the reference
+        // the Cortex-M4 loops implement instruction by instruction. Pseudo-random words
+        // (xorshift) in the ranges the kernels use.
+        let mut x = 0x1234_5678u32;
+        let mut next = || {
+            x ^= x << 13;
+            x ^= x >> 17;
+            x ^= x << 5;
+            x
+        };
+        for _ in 0..20_000 {
+            let (a, w) = (next() & 0x3fff_3fff, next());
+            let (ar, ai) = parts(a);
+            macro_rules! check_s {
+                ($s:literal) => {
+                    let (r, i) = cmul::<$s>(a, w);
+                    assert_eq!(pack(r, i), Portable::cmul::<$s>(a, w));
+                    assert_eq!(pack(guard::<$s>(ar), guard::<$s>(ai)), Portable::guard::<$s, true>(a));
+                };
+            }
+            check_s!(0);
+            check_s!(1);
+            check_s!(2);
+            check_s!(3);
+            let b = next();
+            let (br, bi) = parts(b);
+            assert_eq!(pack(sat(ar + br), sat(ai + bi)), Portable::qadd16(a, b));
+            assert_eq!(pack(sat(ar - br), sat(ai - bi)), Portable::qsub16(a, b));
+            assert_eq!(pack((ar + bi) >> 1, (ai - br) >> 1), Portable::shsax(a, b));
+            assert_eq!(pack((ar - bi) >> 1, (ai + br) >> 1), Portable::shasx(a, b));
+            assert_eq!(mag2(ar, ai), Portable::mag2(a));
+        }
+    }
 
     #[test]
     fn twiddles_match_libm_to_q15_rounding() {

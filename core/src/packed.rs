@@ -1,11 +1,12 @@
 //! Dual 16-bit operations on packed complex Q15 words (real part low, imaginary part high).
 //!
-//! The fixed-point kernels are written once against [`Packed`]. [`Portable`] implements it in
-//! plain Rust for every target; on cores with the DSP extension (`cfg(arm_dsp)`, set by
-//! `build.rs` for ARMv7E-M) [`Dsp`] maps each operation to one or a few instructions
-//! (QADD16, SHADD16, SHASX, SMUAD, SMUSD, PKHTB …). Both compute the same bits: every
-//! definition below is exact integer arithmetic, and the kernels keep their operands in the
-//! ranges where the instructions' saturation or truncation cannot act.
+//! [`Packed`] defines the arithmetic of the Q15 kernels once, as exact integer operations on
+//! packed words; [`Portable`] is the reference implementation. On cores with the DSP extension
+//! (`cfg(arm_dsp)`, set by `build.rs` for ARMv7E-M) the FFT's hand-scheduled loops perform
+//! each operation with the matching instruction (QADD16, SHADD16, SHASX, SMUAD, SMUSD,
+//! PKHTB …); the portable kernels compute the same operations on i32 parts (tested against
+//! [`Portable`]). The kernels keep operands in the ranges where an instruction's truncation
+//! cannot act, so all paths give the same bits.
 
 use crate::fixed::Cq15;
 
@@ -36,13 +37,6 @@ pub trait Packed {
     /// result fits (`k ≤ 15`).
     fn up(a: u32, k: u32, p: u32) -> u32;
 }
-
-/// The operation set for the current target.
-#[cfg(arm_dsp)]
-pub type Ops = Dsp;
-/// The operation set for the current target.
-#[cfg(not(arm_dsp))]
-pub type Ops = Portable;
 
 /// Views complex Q15 samples as packed words.
 pub fn as_words_mut<const N: usize>(buf: &mut [Cq15; N]) -> &mut [u32; N] {
@@ -141,131 +135,6 @@ impl Packed for Portable {
     fn up(a: u32, k: u32, p: u32) -> u32 {
         let c = 1i32 << (k & 15);
         pack(sat(lo(a) * c + p as i32), sat(hi(a) * c + p as i32))
-    }
-}
-
-/// Cortex-M DSP-extension implementation (ARMv7E-M).
-#[cfg(arm_dsp)]
-#[derive(Clone, Copy, Debug)]
-pub struct Dsp;
-
-#[cfg(arm_dsp)]
-macro_rules! dsp2 {
-    ($name:ident, $insn:literal) => {
-        #[inline(always)]
-        fn $name(a: u32, b: u32) -> u32 {
-            let r: u32;
-            // SAFETY: one register-only DSP instruction; no memory, no stack.
-            unsafe {
-                core::arch::asm!(concat!($insn, " {r}, {a}, {b}"), r = lateout(reg) r,
-                    a = in(reg) a, b = in(reg) b, options(pure, nomem, nostack));
-            }
-            r
-        }
-    };
-}
-
-#[cfg(arm_dsp)]
-impl Packed for Dsp {
-    dsp2!(qadd16, "qadd16");
-    dsp2!(qsub16, "qsub16");
-    dsp2!(shadd16, "shadd16");
-    dsp2!(shsub16, "shsub16");
-    dsp2!(shsax, "shsax");
-    dsp2!(shasx, "shasx");
-
-    #[inline(always)]
-    fn mag2(a: u32) -> u32 {
-        let r: u32;
-        // SAFETY: register-only instruction.
-        unsafe {
-            core::arch::asm!("smuad {r}, {a}, {a}", r = lateout(reg) r, a = in(reg) a,
-                options(pure, nomem, nostack));
-        }
-        r
-    }
-
-    #[inline(always)]
-    fn cmul<const S: u32>(x: u32, w: u32) -> u32 {
-        let (re, im): (u32, u32);
-        // re: SMUSD gives x.re·w.re − x.im·w.im exactly; add the rounding constant; PKHTB
-        // shifts it down by 14+S into the low half. im: SMUADX gives x.re·w.im + x.im·w.re;
-        // shifting so that bit 14+S lands on bit 16 and adding 2^15 leaves the rounded value
-        // in the high half.
-        // SAFETY (all arms): register-only instructions.
-        unsafe {
-            match S {
-                0 => core::arch::asm!(
-                    "smusd {re}, {x}, {w}",
-                    "smuadx {im}, {x}, {w}",
-                    "add {re}, {re}, #0x2000",
-                    "add {im}, {half}, {im}, lsl #2",
-                    "pkhtb {re}, {im}, {re}, asr #14",
-                    re = out(reg) re, im = out(reg) im, x = in(reg) x, w = in(reg) w,
-                    half = in(reg) 0x8000u32, options(pure, nomem, nostack)),
-                1 => core::arch::asm!(
-                    "smusd {re}, {x}, {w}",
-                    "smuadx {im}, {x}, {w}",
-                    "add {re}, {re}, #0x4000",
-                    "add {im}, {half}, {im}, lsl #1",
-                    "pkhtb {re}, {im}, {re}, asr #15",
-                    re = out(reg) re, im = out(reg) im, x = in(reg) x, w = in(reg) w,
-                    half = in(reg) 0x8000u32, options(pure, nomem, nostack)),
-                2 => core::arch::asm!(
-                    "smusd {re}, {x}, {w}",
-                    "smuadx {im}, {x}, {w}",
-                    "add {re}, {re}, #0x8000",
-                    "add {im}, {half}, {im}",
-                    "pkhtb {re}, {im}, {re}, asr #16",
-                    re = out(reg) re, im = out(reg) im, x = in(reg) x, w = in(reg) w,
-                    half = in(reg) 0x8000u32, options(pure, nomem, nostack)),
-                _ => core::arch::asm!(
-                    "smusd {re}, {x}, {w}",
-                    "smuadx {im}, {x}, {w}",
-                    "add {re}, {re}, #0x10000",
-                    "add {im}, {half}, {im}, asr #1",
-                    "pkhtb {re}, {im}, {re}, asr #17",
-                    re = out(reg) re, im = out(reg) im, x = in(reg) x, w = in(reg) w,
-                    half = in(reg) 0x8000u32, options(pure, nomem, nostack)),
-            }
-        }
-        let _ = im;
-        re
-    }
-
-    #[inline(always)]
-    fn guard<const S: u32, const PLUS1: bool>(a: u32) -> u32 {
-        let p = u32::from(PLUS1);
-        match S {
-            0 => Self::qadd16(Self::qadd16(a, a), p * 0x0001_0001),
-            1 => {
-                if PLUS1 {
-                    Self::qadd16(a, 0x0001_0001)
-                } else {
-                    a
-                }
-            }
-            2 => Self::shadd16(a, (1 + 2 * p) * 0x0001_0001),
-            _ => Self::shadd16(Self::shadd16(a, (2 + 4 * p) * 0x0001_0001), 0),
-        }
-    }
-
-    #[inline(always)]
-    fn up(a: u32, k: u32, p: u32) -> u32 {
-        // The kernels call this only where a·2^k + p fits in 16 bits, so the products need
-        // no saturation: SMULBB/SMULTB then PKHBT.
-        let c = 1u32 << (k & 15);
-        let (l, h): (u32, u32);
-        // SAFETY: register-only instructions.
-        unsafe {
-            core::arch::asm!(
-                "smulbb {l}, {a}, {c}",
-                "smultb {h}, {a}, {c}",
-                l = out(reg) l, h = out(reg) h, a = in(reg) a, c = in(reg) c,
-                options(pure, nomem, nostack));
-        }
-        let (l, h) = (l.wrapping_add(p), h.wrapping_add(p));
-        (l & 0xffff) | (h << 16)
     }
 }
 
