@@ -113,7 +113,7 @@ fn transform<const N: usize>(input: &[u32; N], output: &mut [u32; N], m: u32) ->
     let (mut shifts, mut mm, mut span);
     if Q15Fft::<N>::LOG2_N % 2 == 1 {
         shifts = m - 14;
-        mm = with_prep!(shifts, first_radix2::<N>(input, output));
+        mm = first_radix2_stage::<N>(input, output, shifts);
         span = 2;
     } else {
         shifts = m - 13;
@@ -189,6 +189,66 @@ fn copy_and_measure<const N: usize>(src: &[u32; N], dst: &mut [u32; N]) -> u32 {
         }
         component_bits(src)
     }
+}
+
+/// The first radix-2 stage (odd log2 N) for first-stage shift `s`: the hand-scheduled loop for
+/// the down-scaling shifts on the Cortex-M4, the generic kernel otherwise.
+fn first_radix2_stage<const N: usize>(input: &[u32; N], output: &mut [u32; N], s: i32) -> u32 {
+    #[cfg(arm_dsp)]
+    {
+        match s {
+            0 => return first_radix2_dsp::<0, N>(input, output),
+            1 => return first_radix2_dsp::<1, N>(input, output),
+            _ => {}
+        }
+    }
+    with_prep!(s, first_radix2::<N>(input, output))
+}
+
+/// [`first_radix2`] for shifts 0 and 1 as one ARMv7E-M loop (same operations, same bits):
+/// QADD16 for the guard scaling (`sat(sat(2v) + p)`, `sat(v + p)`), SHADD16/SHSUB16 for the
+/// halving sum and difference, SMUAD for the squared magnitude.
+#[cfg(arm_dsp)]
+fn first_radix2_dsp<const S: u32, const N: usize>(input: &[u32; N], output: &mut [u32; N]) -> u32 {
+    let mut acc = 0u32;
+    let rev_bits = Q15Fft::<N>::LOG2_N - 1;
+    macro_rules! kernel {
+        ($guard:literal) => {
+            // SAFETY: g runs N/2 − 1 … 0; r = rev(g) < N/2, so the loads at r and r + N/2 are
+            // inside `input`; STMDB writes words 2g, 2g+1 of `output` from its end downwards.
+            unsafe {
+                core::arch::asm!(
+                    "2:",
+                    "subs r1, r1, #1",
+                    "rbit r8, r1",
+                    "lsr r8, r8, r2",
+                    "add r8, r3, r8, lsl #2",
+                    "ldr r9, [r8]",
+                    "ldr r10, [r8, r4]",
+                    "mov r11, #0x00010001",
+                    $guard,
+                    "shadd16 r11, r9, r10",
+                    "shsub16 r12, r9, r10",
+                    "smuad r9, r11, r11",
+                    "orr lr, lr, r9",
+                    "smuad r9, r12, r12",
+                    "orr lr, lr, r9",
+                    "stmdb r0!, {{r11, r12}}",
+                    "cmp r1, #0",
+                    "bne 2b",
+                    inout("r0") output.as_mut_ptr().add(N) => _, inout("r1") N / 2 => _,
+                    in("r2") 32 - rev_bits, in("r3") input.as_ptr(), in("r4") 2 * N,
+                    out("r8") _, out("r9") _, out("r10") _, out("r11") _, out("r12") _,
+                    inout("lr") acc, options(nostack))
+            }
+        };
+    }
+    // r4 = N/2 words = 2N bytes; r11 = the rounding constant 1 in each half.
+    match S {
+        0 => kernel!("qadd16 r9, r9, r9\n qadd16 r10, r10, r10\n qadd16 r9, r9, r11"),
+        _ => kernel!("qadd16 r9, r9, r11"),
+    }
+    bits(acc)
 }
 
 /// The twiddle-free first radix-4 stage for first-stage shift `s`: the hand-scheduled loop
@@ -520,7 +580,6 @@ fn first_radix4<const N: usize, P: Fn(i32, i32) -> i32>(
     bits(acc)
 }
 
-
 /// A radix-4 stage with twiddles on this target: the hand-scheduled loop on cores with the
 /// DSP extension, the generic one elsewhere (both compute the same bits).
 /// `DETECT = false` skips the output magnitude (last stage).
@@ -796,7 +855,10 @@ mod tests {
                 ($s:literal) => {
                     let (r, i) = cmul::<$s>(a, w);
                     assert_eq!(pack(r, i), Portable::cmul::<$s>(a, w));
-                    assert_eq!(pack(guard::<$s>(ar), guard::<$s>(ai)), Portable::guard::<$s, true>(a));
+                    assert_eq!(
+                        pack(guard::<$s>(ar), guard::<$s>(ai)),
+                        Portable::guard::<$s, true>(a)
+                    );
                 };
             }
             check_s!(0);

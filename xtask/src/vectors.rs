@@ -277,6 +277,17 @@ pub fn check(core: &Core, elf: &Path, failures: &mut Failures) -> Result<(), Str
             ));
         }
         let sqnr = sqnr_db(&ys, &reference(&x));
+        // The Q15 FFT's targets for complex Gaussian input, measured on the target's own
+        // outputs: ≥ 68 dB for N ≤ 256, ≥ 64 dB above (the Q15 FFT issue; tests/fft_q15.rs
+        // checks the same on the host).
+        if h("stage") == "fft_q15" && h("kind").starts_with("gauss") {
+            let floor = if n <= 256 { 68.0 } else { 64.0 };
+            if sqnr < floor {
+                failures.push(format!(
+                    "{label}: SQNR {sqnr:.1} dB below the {floor} dB target"
+                ));
+            }
+        }
         println!(
             "{:<11} {:>5} {:<13} {:<8} {:>5} {:>10} {:>9.1}",
             core.name,

@@ -147,7 +147,10 @@ fn main() -> ! {
         // SAFETY: as above.
         let buf_q15: &mut [Cq15; MAX_N] = unsafe { &mut *addr_of_mut!(BUF_Q15) };
         fft_q15::<16>(buf_q15, &mut failures);
+        // 32 and 128: odd log2 N, the radix-2 first stage.
+        fft_q15::<32>(buf_q15, &mut failures);
         fft_q15::<64>(buf_q15, &mut failures);
+        fft_q15::<128>(buf_q15, &mut failures);
         fft_q15::<256>(buf_q15, &mut failures);
         #[cfg(not(core_m0))]
         fft_q15::<1024>(buf_q15, &mut failures);
