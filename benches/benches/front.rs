@@ -1,11 +1,15 @@
-//! Per-symbol cost of the f32 receive front (CP removal + FFT) and the max-log demapper,
-//! for N = 64, 256, 1024. Host figures only; target costs are instruction counts (MCU.md).
+//! Per-symbol cost of the receive front (f32 FFT, Q15 FFT in place and out of place, CP
+//! removal + f32 FFT) and the max-log demapper, for N = 64, 256, 1024. Host figures only
+//! (the Q15 FFT here is the portable path); target costs are instruction counts
+//! (`cargo xtask mcu`, mcu/costs.csv).
 
 use std::hint::black_box;
 
 use criterion::{criterion_group, criterion_main, BenchmarkId, Criterion, Throughput};
 use flatbin::demap::{demap_symbols, llr_to_i8, I8_LSB_PER_LLR};
 use flatbin::fft::{MicroFft, OfdmFft};
+use flatbin::fft_q15::Q15Fft;
+use flatbin::fixed::Cq15;
 use flatbin::front::Front;
 use flatbin::numerology::NumerologyParams;
 use flatbin::{Cf32, Modulation, Numerology};
@@ -39,7 +43,7 @@ fn samples(len: usize) -> Vec<Cf32> {
 fn bench_n<const N: usize>(c: &mut Criterion) {
     let nu = numerology(N);
     let input = samples(nu.symbol_len());
-    let mut group = c.benchmark_group("f32_front");
+    let mut group = c.benchmark_group("front");
     group.throughput(Throughput::Elements(1));
     let mut fft = MicroFft::<N>::new();
     group.bench_function(BenchmarkId::new("fft", N), |b| {
@@ -48,6 +52,21 @@ fn bench_n<const N: usize>(c: &mut Criterion) {
             buf.copy_from_slice(&input[..N]);
             black_box(fft.forward(black_box(&mut buf)))
         })
+    });
+    let mut q15 = Q15Fft::<N>::new();
+    let input_q15: Vec<Cq15> = input.iter().map(|v| Cq15::from_cf32(*v * 0.25)).collect();
+    group.bench_function(BenchmarkId::new("fft_q15", N), |b| {
+        let mut buf = [Cq15::ZERO; N];
+        b.iter(|| {
+            buf.copy_from_slice(&input_q15[..N]);
+            black_box(q15.forward(black_box(&mut buf)))
+        })
+    });
+    group.bench_function(BenchmarkId::new("fft_q15_out_of_place", N), |b| {
+        let mut src = [Cq15::ZERO; N];
+        src.copy_from_slice(&input_q15[..N]);
+        let mut out = [Cq15::ZERO; N];
+        b.iter(|| black_box(Q15Fft::<N>::forward_from(black_box(&src), &mut out)))
     });
     let mut front = Front::new(&nu, MicroFft::<N>::new()).expect("sizes match");
     group.bench_function(BenchmarkId::new("cp_removal_and_fft", N), |b| {
