@@ -593,7 +593,11 @@ fn stage<const S: u32, const DETECT: bool, const N: usize>(
     {
         radix4_stage_dsp::<S, DETECT, N>(data, tw, span)
     }
-    #[cfg(not(arm_dsp))]
+    #[cfg(all(target_arch = "arm", not(arm_dsp)))]
+    {
+        radix4_stage_thumb1::<S, DETECT, N>(data, tw, span)
+    }
+    #[cfg(not(target_arch = "arm"))]
     {
         radix4_stage::<S, DETECT, N>(data, tw, span)
     }
@@ -607,7 +611,7 @@ fn stage<const S: u32, const DETECT: bool, const N: usize>(
 /// the semantics of the [`Packed`] operations (`guard`, `cmul`, saturating `qadd16`/`qsub16`,
 /// halving `shadd16`/`shsub16`/`shsax`/`shasx`, `mag2`); the twiddle products need no wrap
 /// because the stage shift bounds them below 2^14 (module docs).
-#[cfg_attr(arm_dsp, allow(dead_code))]
+#[cfg_attr(target_arch = "arm", allow(dead_code))]
 fn radix4_stage<const S: u32, const DETECT: bool, const N: usize>(
     data: &mut [u32; N],
     tw: &[u32],
@@ -749,6 +753,262 @@ fn radix4_stage_dsp<const S: u32, const DETECT: bool, const N: usize>(
                     "mov r10, #0x00030003\n shadd16 r9, r9, r10"),
                 _ => kernel!("asr r11, r11, #1\n add r11, r11, #0x8000", "17", "0x10000",
                     "mov r10, #0x00060006\n shadd16 r9, r9, r10\n mov r10, #0\n shadd16 r9, r9, r10"),
+            }
+        }
+    }
+    bits(acc)
+}
+
+/// Saturation to i16 of low register `$x` (temp `$t`) as Thumb-1 text: three instructions
+/// when nothing saturates.
+#[cfg(all(target_arch = "arm", not(arm_dsp)))]
+macro_rules! t1_sat {
+    ($x:literal, $t:literal) => {
+        concat!(
+            "sxth ", $t, ", ", $x, "\n", "cmp ", $t, ", ", $x, "\n", "beq 1f\n", "asrs ", $x, ", ",
+            $x, ", #31\n", "movs ", $t, ", #128\n", "lsls ", $t, ", ", $t, ", #8\n", "subs ", $t,
+            ", #1\n", "eors ", $x, ", ", $t, "\n", "1:\n"
+        )
+    };
+}
+
+/// Complex product of `r2` (x) and `r4` (w) rounded at `2^-$sh` (the rounding constant is
+/// in `lr`), as Thumb-1 text: real part to `r7`, imaginary part to `r5`; clobbers r0, r2, r4,
+/// r6.
+#[cfg(all(target_arch = "arm", not(arm_dsp)))]
+macro_rules! t1_cmul {
+    ($sh:literal) => {
+        concat!(
+            "sxth r5, r2\n",
+            "asrs r2, r2, #16\n",
+            "sxth r6, r4\n",
+            "asrs r4, r4, #16\n",
+            "mov r7, r5\n",
+            "muls r7, r6, r7\n",
+            "mov r0, r2\n",
+            "muls r0, r4, r0\n",
+            "subs r7, r7, r0\n",
+            "muls r5, r4, r5\n",
+            "muls r2, r6, r2\n",
+            "adds r5, r5, r2\n",
+            "add r7, lr\n",
+            "asrs r7, r7, #",
+            $sh,
+            "\n",
+            "add r5, lr\n",
+            "asrs r5, r5, #",
+            $sh,
+            "\n"
+        )
+    };
+}
+
+/// [`radix4_stage`] as one hand-scheduled ARMv6-M (Thumb-1) loop: the same operations on
+/// parts, in the same order, so the same bits. Pointers live in high registers, the three
+/// twiddle products in a 24-byte stack frame; r6/r7 are saved and restored inside.
+#[cfg(all(target_arch = "arm", not(arm_dsp)))]
+fn radix4_stage_thumb1<const S: u32, const DETECT: bool, const N: usize>(
+    data: &mut [u32; N],
+    tw: &[u32],
+    span: usize,
+) -> u32 {
+    if span == 0 || !(4 * span).is_power_of_two() || 4 * span > N || tw.len() < 3 * span {
+        return 32;
+    }
+    let mut acc = 0u32;
+    let base = data.as_mut_ptr();
+    for block in 0..N / (4 * span) {
+        // SAFETY: as in `radix4_stage`: words p, p + span, p + 2·span, p + 3·span for p in
+        // [block·4·span, block·4·span + span), all below N; 3·span twiddle words. The asm
+        // restores sp, r6 and r7 before it ends.
+        unsafe {
+            let p = base.add(block * 4 * span);
+            let end = p.add(span);
+            macro_rules! kernel {
+                ($sh:literal, $rnd:literal, $guard:literal, $det1:literal, $det3:literal,
+                 $det0:literal, $det2:literal, $detacc:literal) => {
+                    core::arch::asm!(
+                        "push {{r6, r7}}",
+                        "sub sp, #24",
+                        "mov r12, r0",
+                        "mov r9, r1",
+                        "mov r10, r2",
+                        "mov r11, r3",
+                        "mov r8, r4",
+                        "movs r4, #1",
+                        concat!("lsls r4, r4, #", $rnd),
+                        "mov lr, r4",
+                        "2:",
+                        // b = x1·W^2k: x1 at p + L, W^2k at t + 4
+                        "mov r0, r12",
+                        "mov r1, r9",
+                        "ldr r2, [r0, r1]",
+                        "mov r3, r10",
+                        "ldr r4, [r3, #4]",
+                        t1_cmul!($sh),
+                        "str r7, [sp, #0]",
+                        "str r5, [sp, #4]",
+                        // c = x2·W^k: x2 at p + 2L, W^k at t
+                        "mov r0, r12",
+                        "mov r1, r9",
+                        "lsls r1, r1, #1",
+                        "ldr r2, [r0, r1]",
+                        "mov r3, r10",
+                        "ldr r4, [r3, #0]",
+                        t1_cmul!($sh),
+                        "str r7, [sp, #8]",
+                        "str r5, [sp, #12]",
+                        // d = x3·W^3k: x3 at p + 3L, W^3k at t + 8
+                        "mov r0, r12",
+                        "mov r1, r9",
+                        "adds r0, r0, r1",
+                        "lsls r1, r1, #1",
+                        "ldr r2, [r0, r1]",
+                        "mov r3, r10",
+                        "ldr r4, [r3, #8]",
+                        t1_cmul!($sh),
+                        "str r7, [sp, #16]",
+                        "str r5, [sp, #20]",
+                        // a = guard(x0): parts in r1 (re), r2 (im)
+                        "mov r0, r12",
+                        "ldr r2, [r0]",
+                        "sxth r1, r2",
+                        "asrs r2, r2, #16",
+                        $guard,
+                        // t0 = a + b (r5, r6), t1 = a − b (r1, r2)
+                        "ldr r3, [sp, #0]",
+                        "ldr r4, [sp, #4]",
+                        "adds r5, r1, r3",
+                        "subs r1, r1, r3",
+                        "adds r6, r2, r4",
+                        "subs r2, r2, r4",
+                        t1_sat!("r5", "r3"),
+                        t1_sat!("r1", "r3"),
+                        t1_sat!("r6", "r3"),
+                        t1_sat!("r2", "r3"),
+                        // t2.re (r7), t3.re (r3)
+                        "ldr r3, [sp, #8]",
+                        "ldr r4, [sp, #16]",
+                        "adds r7, r3, r4",
+                        "subs r3, r3, r4",
+                        t1_sat!("r7", "r4"),
+                        t1_sat!("r3", "r4"),
+                        // y0.re, y2.re to the frame
+                        "adds r0, r5, r7",
+                        "asrs r0, r0, #1",
+                        "subs r5, r5, r7",
+                        "asrs r5, r5, #1",
+                        "str r0, [sp, #8]",
+                        "str r5, [sp, #16]",
+                        // y1.im = (t1.im − t3.re)/2 (r0), y3.im = (t1.im + t3.re)/2 (r2)
+                        "subs r0, r2, r3",
+                        "asrs r0, r0, #1",
+                        "adds r2, r2, r3",
+                        "asrs r2, r2, #1",
+                        // t2.im (r5), t3.im (r3)
+                        "ldr r3, [sp, #12]",
+                        "ldr r4, [sp, #20]",
+                        "adds r5, r3, r4",
+                        "subs r3, r3, r4",
+                        t1_sat!("r5", "r4"),
+                        t1_sat!("r3", "r4"),
+                        // y0.im (r4), y2.im (r6), y1.re (r5), y3.re (r1)
+                        "adds r4, r6, r5",
+                        "asrs r4, r4, #1",
+                        "subs r6, r6, r5",
+                        "asrs r6, r6, #1",
+                        "adds r5, r1, r3",
+                        "asrs r5, r5, #1",
+                        "subs r1, r1, r3",
+                        "asrs r1, r1, #1",
+                        // y1: |y1|² into r3, pack to r0
+                        $det1,
+                        "uxth r5, r5",
+                        "lsls r0, r0, #16",
+                        "orrs r0, r5",
+                        // y3: |y3|² or-ed into r3, pack to r2
+                        $det3,
+                        "uxth r1, r1",
+                        "lsls r2, r2, #16",
+                        "orrs r2, r1",
+                        // store y1 at p + L, y3 at p + 3L
+                        "mov r1, r12",
+                        "mov r5, r9",
+                        "str r0, [r1, r5]",
+                        "adds r1, r1, r5",
+                        "lsls r5, r5, #1",
+                        "str r2, [r1, r5]",
+                        // y0 (re from the frame, im r4) → r4; y2 (re from the frame, im r6) → r6
+                        "ldr r0, [sp, #8]",
+                        $det0,
+                        "uxth r0, r0",
+                        "lsls r4, r4, #16",
+                        "orrs r4, r0",
+                        "ldr r0, [sp, #16]",
+                        $det2,
+                        "uxth r0, r0",
+                        "lsls r6, r6, #16",
+                        "orrs r6, r0",
+                        // store y0 at p, y2 at p + 2L
+                        "mov r1, r12",
+                        "str r4, [r1]",
+                        "mov r5, r9",
+                        "lsls r5, r5, #1",
+                        "str r6, [r1, r5]",
+                        $detacc,
+                        // next k
+                        "adds r1, #4",
+                        "mov r12, r1",
+                        "mov r0, r10",
+                        "adds r0, #12",
+                        "mov r10, r0",
+                        "cmp r1, r11",
+                        "beq 3f",
+                        "b 2b",
+                        "3:",
+                        "mov r4, r8",
+                        "add sp, #24",
+                        "pop {{r6, r7}}",
+                        inout("r0") p => _, inout("r1") span * 4 => _,
+                        inout("r2") tw.as_ptr() => _, inout("r3") end => _,
+                        inout("r4") acc, out("r5") _, out("r8") _, out("r9") _,
+                        out("r10") _, out("r11") _, out("r12") _, out("lr") _)
+                };
+            }
+            macro_rules! by_detect {
+                ($sh:literal, $rnd:literal, $guard:literal) => {
+                    if DETECT {
+                        kernel!($sh, $rnd, $guard,
+                            "mov r3, r5\n muls r3, r3, r3\n mov r7, r0\n muls r7, r7, r7\n adds r3, r3, r7",
+                            "mov r5, r1\n muls r5, r5, r5\n mov r7, r2\n muls r7, r7, r7\n adds r5, r5, r7\n orrs r3, r5",
+                            "mov r5, r0\n muls r5, r5, r5\n mov r7, r4\n muls r7, r7, r7\n adds r5, r5, r7\n orrs r3, r5",
+                            "mov r5, r0\n muls r5, r5, r5\n mov r7, r6\n muls r7, r7, r7\n adds r5, r5, r7\n orrs r3, r5",
+                            "mov r5, r8\n orrs r5, r3\n mov r8, r5")
+                    } else {
+                        kernel!($sh, $rnd, $guard, "", "", "", "", "")
+                    }
+                };
+            }
+            // Guard scaling of x0's parts with the +1 of the final halving (packed::Packed::guard):
+            // S = 0: 2v + 1; S = 1: v + 1 (no saturation possible in these stages, module docs);
+            // S = 2: (v + 3) >> 1; S = 3: (v + 6) >> 2.
+            match S {
+                0 => by_detect!(
+                    "14",
+                    "13",
+                    "lsls r1, r1, #1\n adds r1, #1\n lsls r2, r2, #1\n adds r2, #1"
+                ),
+                1 => by_detect!("15", "14", "adds r1, #1\n adds r2, #1"),
+                2 => by_detect!(
+                    "16",
+                    "15",
+                    "adds r1, #3\n asrs r1, r1, #1\n adds r2, #3\n asrs r2, r2, #1"
+                ),
+                _ => by_detect!(
+                    "17",
+                    "16",
+                    "adds r1, #6\n asrs r1, r1, #2\n adds r2, #6\n asrs r2, r2, #2"
+                ),
             }
         }
     }
