@@ -263,6 +263,15 @@ fn first_radix4_stage<const N: usize>(input: &[u32; N], output: &mut [u32; N], s
             _ => {}
         }
     }
+    #[cfg(all(target_arch = "arm", not(arm_dsp)))]
+    {
+        match s {
+            0 => return first_radix4_thumb1::<0, N>(input, output),
+            1 => return first_radix4_thumb1::<1, N>(input, output),
+            2 => return first_radix4_thumb1::<2, N>(input, output),
+            _ => {}
+        }
+    }
     with_prep!(s, first_radix4::<N>(input, output))
 }
 
@@ -1011,6 +1020,208 @@ fn radix4_stage_thumb1<const S: u32, const DETECT: bool, const N: usize>(
                 ),
             }
         }
+    }
+    bits(acc)
+}
+
+/// Byte offsets `4·rev(g)` of the first radix-4 stage's groups (`g < N/4`, `rev` over
+/// log2(N/4) bits), for the Thumb-1 loop; the rest of the table is unused.
+#[cfg(all(target_arch = "arm", not(arm_dsp)))]
+const fn reversed_offsets<const N: usize>() -> [u16; N] {
+    let mut t = [0u16; N];
+    let bits = N.trailing_zeros() - 2;
+    let mut g = 0;
+    while g < N / 4 {
+        let mut r = 0usize;
+        let mut b = 0;
+        while b < bits {
+            r |= ((g >> b) & 1) << (bits - 1 - b);
+            b += 1;
+        }
+        #[allow(clippy::indexing_slicing)]
+        {
+            t[g] = (4 * r) as u16;
+        }
+        g += 1;
+    }
+    t
+}
+
+/// [`first_radix4`] for shifts 0..=2 as one ARMv6-M (Thumb-1) loop (same operations on parts,
+/// same bits). Pointers live in high registers; r6/r7 are saved and restored inside.
+#[cfg(all(target_arch = "arm", not(arm_dsp)))]
+fn first_radix4_thumb1<const S: u32, const N: usize>(
+    input: &[u32; N],
+    output: &mut [u32; N],
+) -> u32 {
+    struct Table<const N: usize>;
+    impl<const N: usize> Table<N> {
+        const OFFSETS: [u16; N] = reversed_offsets::<N>();
+    }
+    let offsets: &[u16; N] = &Table::<N>::OFFSETS;
+    let mut acc = 0u32;
+    macro_rules! kernel {
+        ($guard_a:literal, $guard_b:literal, $guard_cd:literal) => {
+            // SAFETY: the offset table gives r = rev(g) < N/4 for g < N/4, so the loads at
+            // r, r + N/4, r + N/2, r + 3N/4 are inside `input`; the loop writes the 4·(N/4)
+            // words of `output` in order. The asm restores sp, r6 and r7.
+            unsafe {
+                core::arch::asm!(
+                    "push {{r6, r7}}",
+                    "sub sp, #8",
+                    "mov r9, r0",
+                    "mov r10, r1",
+                    "mov r11, r2",
+                    "mov r12, r3",
+                    "mov r8, r4",
+                    "lsls r5, r5, #2",
+                    "adds r5, r5, r3",
+                    "mov lr, r5",
+                    "2:",
+                    // r·4 from the table; x0 = x[r], x2 = x[r + N/4], x1 = x[r + N/2],
+                    // x3 = x[r + 3N/4]
+                    "mov r0, r9",
+                    "ldrh r1, [r0]",
+                    "adds r0, #2",
+                    "mov r9, r0",
+                    "mov r0, r10",
+                    "adds r0, r0, r1",
+                    "ldr r2, [r0]",
+                    "mov r1, r11",
+                    "ldr r4, [r0, r1]",
+                    "adds r0, r0, r1",
+                    "adds r0, r0, r1",
+                    "ldr r3, [r0]",
+                    "ldr r5, [r0, r1]",
+                    // a (r6 re, r2 im) and b (r7 re, r3 im)
+                    "sxth r6, r2",
+                    "asrs r2, r2, #16",
+                    "sxth r7, r3",
+                    "asrs r3, r3, #16",
+                    $guard_a,
+                    $guard_b,
+                    // t0 = a + b (r0, r1), t1 = a − b (r6, r2)
+                    "adds r0, r6, r7",
+                    "subs r6, r6, r7",
+                    "adds r1, r2, r3",
+                    "subs r2, r2, r3",
+                    t1_sat!("r0", "r3"),
+                    t1_sat!("r6", "r3"),
+                    t1_sat!("r1", "r3"),
+                    t1_sat!("r2", "r3"),
+                    "str r0, [sp, #0]",
+                    "str r1, [sp, #4]",
+                    // c (r3 re, r4 im), d (r7 re, r5 im)
+                    "sxth r3, r4",
+                    "asrs r4, r4, #16",
+                    "sxth r7, r5",
+                    "asrs r5, r5, #16",
+                    $guard_cd,
+                    // t2 = c + d (r0, r1), t3 = c − d (r3, r4)
+                    "adds r0, r3, r7",
+                    "subs r3, r3, r7",
+                    "adds r1, r4, r5",
+                    "subs r4, r4, r5",
+                    t1_sat!("r0", "r7"),
+                    t1_sat!("r3", "r7"),
+                    t1_sat!("r1", "r7"),
+                    t1_sat!("r4", "r7"),
+                    // y1 = ((t1.re + t3.im)/2, (t1.im − t3.re)/2) → r5 re, r7 im
+                    // y3 = ((t1.re − t3.im)/2, (t1.im + t3.re)/2) → r6 re, r2 im
+                    "adds r5, r6, r4",
+                    "asrs r5, r5, #1",
+                    "subs r7, r2, r3",
+                    "asrs r7, r7, #1",
+                    "subs r6, r6, r4",
+                    "asrs r6, r6, #1",
+                    "adds r2, r2, r3",
+                    "asrs r2, r2, #1",
+                    // |y1|² | |y3|² into r3; pack y1 → r5, y3 → r6
+                    "mov r3, r5",
+                    "muls r3, r3, r3",
+                    "mov r4, r7",
+                    "muls r4, r4, r4",
+                    "adds r3, r3, r4",
+                    "uxth r5, r5",
+                    "lsls r7, r7, #16",
+                    "orrs r5, r7",
+                    "mov r4, r6",
+                    "muls r4, r4, r4",
+                    "mov r7, r2",
+                    "muls r7, r7, r7",
+                    "adds r4, r4, r7",
+                    "orrs r3, r4",
+                    "uxth r6, r6",
+                    "lsls r2, r2, #16",
+                    "orrs r6, r2",
+                    // y0 = (t0 + t2)/2, y2 = (t0 − t2)/2 from t0 (frame) and t2 (r0, r1)
+                    "ldr r2, [sp, #0]",
+                    "ldr r4, [sp, #4]",
+                    "adds r7, r2, r0",
+                    "asrs r7, r7, #1",
+                    "subs r2, r2, r0",
+                    "asrs r2, r2, #1",
+                    "adds r0, r4, r1",
+                    "asrs r0, r0, #1",
+                    "subs r4, r4, r1",
+                    "asrs r4, r4, #1",
+                    // store y1, y3; then y0 (re r7, im r0) and y2 (re r2, im r4)
+                    "mov r1, r12",
+                    "str r5, [r1, #4]",
+                    "str r6, [r1, #12]",
+                    "mov r5, r7",
+                    "muls r5, r5, r5",
+                    "mov r6, r0",
+                    "muls r6, r6, r6",
+                    "adds r5, r5, r6",
+                    "orrs r3, r5",
+                    "uxth r7, r7",
+                    "lsls r0, r0, #16",
+                    "orrs r0, r7",
+                    "str r0, [r1, #0]",
+                    "mov r5, r2",
+                    "muls r5, r5, r5",
+                    "mov r6, r4",
+                    "muls r6, r6, r6",
+                    "adds r5, r5, r6",
+                    "orrs r3, r5",
+                    "uxth r2, r2",
+                    "lsls r4, r4, #16",
+                    "orrs r4, r2",
+                    "str r4, [r1, #8]",
+                    "mov r5, r8",
+                    "orrs r5, r3",
+                    "mov r8, r5",
+                    "adds r1, #16",
+                    "mov r12, r1",
+                    "cmp r1, lr",
+                    "beq 3f",
+                    "b 2b",
+                    "3:",
+                    "mov r4, r8",
+                    "add sp, #8",
+                    "pop {{r6, r7}}",
+                    inout("r0") offsets.as_ptr() => _, inout("r1") input.as_ptr() => _,
+                    inout("r2") N => _, inout("r3") output.as_mut_ptr() => _,
+                    inout("r4") acc, inout("r5") N => _, out("r8") _, out("r9") _,
+                    out("r10") _, out("r11") _, out("r12") _, out("lr") _)
+            }
+        };
+    }
+    // Guards as in packed::Packed::guard (a carries the +1 of the final halving); at these
+    // shifts the input bound leaves no room for saturation (module docs).
+    match S {
+        0 => kernel!(
+            "lsls r6, r6, #1\n adds r6, #1\n lsls r2, r2, #1\n adds r2, #1",
+            "lsls r7, r7, #1\n lsls r3, r3, #1",
+            "lsls r3, r3, #1\n lsls r4, r4, #1\n lsls r7, r7, #1\n lsls r5, r5, #1"
+        ),
+        1 => kernel!("adds r6, #1\n adds r2, #1", "", ""),
+        _ => kernel!(
+            "adds r6, #3\n asrs r6, r6, #1\n adds r2, #3\n asrs r2, r2, #1",
+            "adds r7, #1\n asrs r7, r7, #1\n adds r3, #1\n asrs r3, r3, #1",
+            "adds r3, #1\n asrs r3, r3, #1\n adds r4, #1\n asrs r4, r4, #1\n adds r7, #1\n asrs r7, r7, #1\n adds r5, #1\n asrs r5, r5, #1"
+        ),
     }
     bits(acc)
 }

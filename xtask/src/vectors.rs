@@ -343,8 +343,12 @@ mod tests {
     #[test]
     fn reference_of_a_tone() {
         // Unitary DFT of a unit complex tone on bin 3 (N = 16): sqrt(16) = 4 in bin 3.
-        let (x, _) = input(3, 16); // CASES[3] is the full-scale tone on bin 3
-        assert_eq!(CASES[3].kind, vectors_gen::Kind::Tone { bin: 3 });
+        let k = CASES
+            .iter()
+            .position(|c| c.label == "tone-bin3")
+            .expect("tone case");
+        let (x, _) = input(k, 16);
+        assert_eq!(CASES[k].kind, vectors_gen::Kind::Tone { bin: 3 });
         let r = reference(&x);
         assert!(
             (r[3].re - 4.0 * 32767.0 / 32768.0).abs() < 1e-3,

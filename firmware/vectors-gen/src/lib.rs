@@ -44,10 +44,19 @@ pub struct Case {
 }
 
 /// The input kinds of the bit-exact vector check.
-pub const CASES: [Case; 4] = [
+pub const CASES: [Case; 6] = [
     Case {
         label: "gauss-12dBFS",
         kind: Kind::Gaussian { dbfs: -12 },
+    },
+    // -20 and -26 dBFS: inputs whose first stage shifts by 1 and 0 (every first-stage path).
+    Case {
+        label: "gauss-20dBFS",
+        kind: Kind::Gaussian { dbfs: -20 },
+    },
+    Case {
+        label: "gauss-26dBFS",
+        kind: Kind::Gaussian { dbfs: -26 },
     },
     Case {
         label: "gauss-40dBFS",
