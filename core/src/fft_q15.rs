@@ -105,7 +105,6 @@ impl<const N: usize> Q15Fft<N> {
 /// The transform of [`Q15Fft`]: first stage `input → output`, then the radix-4 stages in
 /// place on `output`; `m` is the input's [`component_bits`]. Returns the sum of the shifts.
 fn transform<const N: usize>(input: &[u32; N], output: &mut [u32; N], m: u32) -> i32 {
-    let tw: &[u32] = &Q15Fft::<N>::TWIDDLES;
     let mut tw_offset = 0usize;
     let m = m as i32;
     // First stage: the least shift that keeps its worst case in range; negative shifts scale
@@ -124,7 +123,7 @@ fn transform<const N: usize>(input: &[u32; N], output: &mut [u32; N], m: u32) ->
         // |x|² < 2^mm bounds |x| < 2^(mm/2), and i16 parts bound |x| ≤ 2^15.5: four rotated
         // terms stay below 2^15 after a shift of min(ceil(mm/2) − 13, 3).
         let s = mm.div_ceil(2).saturating_sub(13).min(3);
-        let stage_tw = tw.get(tw_offset..tw_offset + 3 * span).unwrap_or(&[]);
+        let stage_tw = tw_offset..tw_offset + 3 * span;
         tw_offset += 3 * span;
         // The last stage's output magnitude is not needed.
         let last = 4 * span >= N;
@@ -182,7 +181,40 @@ fn copy_and_measure<const N: usize>(src: &[u32; N], dst: &mut [u32; N]) -> u32 {
         }
         halves_bits(acc)
     }
-    #[cfg(not(arm_dsp))]
+    #[cfg(all(target_arch = "arm", not(arm_dsp)))]
+    {
+        let mut acc = 0u32;
+        // SAFETY: N is a multiple of 4 (≥ 16); both arrays hold N words; 4 words per iteration
+        // from src to dst, distinct borrows. The asm restores r6 and r7.
+        unsafe {
+            core::arch::asm!(
+                "push {{r6, r7}}",
+                "mov r8, r2",
+                "2:",
+                "ldm r0!, {{r4, r5, r6, r7}}",
+                "stm r1!, {{r4, r5, r6, r7}}",
+                "lsls r2, r4, #1",
+                "eors r2, r4",
+                "orrs r3, r2",
+                "lsls r2, r5, #1",
+                "eors r2, r5",
+                "orrs r3, r2",
+                "lsls r2, r6, #1",
+                "eors r2, r6",
+                "orrs r3, r2",
+                "lsls r2, r7, #1",
+                "eors r2, r7",
+                "orrs r3, r2",
+                "cmp r0, r8",
+                "bne 2b",
+                "pop {{r6, r7}}",
+                inout("r0") src.as_ptr() => _, inout("r1") dst.as_mut_ptr() => _,
+                inout("r2") src.as_ptr().add(N) => _, inout("r3") acc, out("r4") _,
+                out("r5") _, out("r8") _);
+        }
+        halves_bits(acc)
+    }
+    #[cfg(not(target_arch = "arm"))]
     {
         for (d, s) in dst.iter_mut().zip(src.iter()) {
             *d = *s;
@@ -595,19 +627,26 @@ fn first_radix4<const N: usize, P: Fn(i32, i32) -> i32>(
 #[inline(always)]
 fn stage<const S: u32, const DETECT: bool, const N: usize>(
     data: &mut [u32; N],
-    tw: &[u32],
+    tw: core::ops::Range<usize>,
     span: usize,
 ) -> u32 {
     #[cfg(arm_dsp)]
     {
+        let tw = Q15Fft::<N>::TWIDDLES.get(tw).unwrap_or(&[]);
         radix4_stage_dsp::<S, DETECT, N>(data, tw, span)
     }
     #[cfg(all(target_arch = "arm", not(arm_dsp)))]
     {
-        radix4_stage_thumb1::<S, DETECT, N>(data, tw, span)
+        struct Gauss<const N: usize>;
+        impl<const N: usize> Gauss<N> {
+            const TABLE: [[i32; 3]; N] = gauss_table::<N>(&Q15Fft::<N>::TWIDDLES);
+        }
+        let table: &[[i32; 3]; N] = &Gauss::<N>::TABLE;
+        radix4_stage_thumb1::<S, DETECT, N>(data, table.get(tw).unwrap_or(&[]), span)
     }
     #[cfg(not(target_arch = "arm"))]
     {
+        let tw = Q15Fft::<N>::TWIDDLES.get(tw).unwrap_or(&[]);
         radix4_stage::<S, DETECT, N>(data, tw, span)
     }
 }
@@ -781,25 +820,32 @@ macro_rules! t1_sat {
     };
 }
 
-/// Complex product of `r2` (x) and `r4` (w) rounded at `2^-$sh` (the rounding constant is
-/// in `lr`), as Thumb-1 text: real part to `r7`, imaginary part to `r5`; clobbers r0, r2, r4,
-/// r6.
+/// Complex product of `r2` (x) and the twiddle at byte offset `$o` of `r3` (stored as
+/// `wr, wr + wi, wi − wr`), rounded at `2^-$sh` (the rounding constant is in `lr`), as Thumb-1
+/// text: real part to `r7`, imaginary part to `r5`; clobbers r2, r4, r6. Three multiplies:
+/// `k = wr·(xr + xi)`, `re = k − xi·(wr + wi)`, `im = k + xr·(wi − wr)` — the same integers as
+/// the four-multiply form (32-bit wrap-around cancels, the results fit).
 #[cfg(all(target_arch = "arm", not(arm_dsp)))]
 macro_rules! t1_cmul {
-    ($sh:literal) => {
+    ($sh:literal, $o0:literal, $o1:literal, $o2:literal) => {
         concat!(
             "sxth r5, r2\n",
             "asrs r2, r2, #16\n",
-            "sxth r6, r4\n",
-            "asrs r4, r4, #16\n",
-            "mov r7, r5\n",
-            "muls r7, r6, r7\n",
-            "mov r0, r2\n",
-            "muls r0, r4, r0\n",
-            "subs r7, r7, r0\n",
-            "muls r5, r4, r5\n",
-            "muls r2, r6, r2\n",
-            "adds r5, r5, r2\n",
+            "adds r7, r5, r2\n",
+            "ldr r4, [r3, #",
+            $o0,
+            "]\n",
+            "muls r7, r4, r7\n",
+            "ldr r4, [r3, #",
+            $o1,
+            "]\n",
+            "muls r4, r2, r4\n",
+            "ldr r6, [r3, #",
+            $o2,
+            "]\n",
+            "muls r6, r5, r6\n",
+            "adds r5, r7, r6\n",
+            "subs r7, r7, r4\n",
             "add r7, lr\n",
             "asrs r7, r7, #",
             $sh,
@@ -812,13 +858,31 @@ macro_rules! t1_cmul {
     };
 }
 
+/// The twiddle table of [`Q15Fft::TWIDDLES`] re-coded for the Thumb-1 three-multiply complex
+/// product: each entry as `(wr, wr + wi, wi − wr)`.
+#[cfg(all(target_arch = "arm", not(arm_dsp)))]
+const fn gauss_table<const N: usize>(packed: &[u32; N]) -> [[i32; 3]; N] {
+    let mut t = [[0i32; 3]; N];
+    let mut i = 0;
+    while i < N {
+        #[allow(clippy::indexing_slicing)]
+        {
+            let w = packed[i];
+            let (wr, wi) = (w as u16 as i16 as i32, (w >> 16) as u16 as i16 as i32);
+            t[i] = [wr, wr + wi, wi - wr];
+        }
+        i += 1;
+    }
+    t
+}
+
 /// [`radix4_stage`] as one hand-scheduled ARMv6-M (Thumb-1) loop: the same operations on
 /// parts, in the same order, so the same bits. Pointers live in high registers, the three
 /// twiddle products in a 24-byte stack frame; r6/r7 are saved and restored inside.
 #[cfg(all(target_arch = "arm", not(arm_dsp)))]
 fn radix4_stage_thumb1<const S: u32, const DETECT: bool, const N: usize>(
     data: &mut [u32; N],
-    tw: &[u32],
+    tw: &[[i32; 3]],
     span: usize,
 ) -> u32 {
     if span == 0 || !(4 * span).is_power_of_two() || 4 * span > N || tw.len() < 3 * span {
@@ -848,13 +912,12 @@ fn radix4_stage_thumb1<const S: u32, const DETECT: bool, const N: usize>(
                         concat!("lsls r4, r4, #", $rnd),
                         "mov lr, r4",
                         "2:",
-                        // b = x1·W^2k: x1 at p + L, W^2k at t + 4
+                        // b = x1·W^2k: x1 at p + L, W^2k at t + 12
                         "mov r0, r12",
                         "mov r1, r9",
                         "ldr r2, [r0, r1]",
                         "mov r3, r10",
-                        "ldr r4, [r3, #4]",
-                        t1_cmul!($sh),
+                        t1_cmul!($sh, "12", "16", "20"),
                         "str r7, [sp, #0]",
                         "str r5, [sp, #4]",
                         // c = x2·W^k: x2 at p + 2L, W^k at t
@@ -863,19 +926,17 @@ fn radix4_stage_thumb1<const S: u32, const DETECT: bool, const N: usize>(
                         "lsls r1, r1, #1",
                         "ldr r2, [r0, r1]",
                         "mov r3, r10",
-                        "ldr r4, [r3, #0]",
-                        t1_cmul!($sh),
+                        t1_cmul!($sh, "0", "4", "8"),
                         "str r7, [sp, #8]",
                         "str r5, [sp, #12]",
-                        // d = x3·W^3k: x3 at p + 3L, W^3k at t + 8
+                        // d = x3·W^3k: x3 at p + 3L, W^3k at t + 24
                         "mov r0, r12",
                         "mov r1, r9",
                         "adds r0, r0, r1",
                         "lsls r1, r1, #1",
                         "ldr r2, [r0, r1]",
                         "mov r3, r10",
-                        "ldr r4, [r3, #8]",
-                        t1_cmul!($sh),
+                        t1_cmul!($sh, "24", "28", "32"),
                         "str r7, [sp, #16]",
                         "str r5, [sp, #20]",
                         // a = guard(x0): parts in r1 (re), r2 (im)
@@ -969,7 +1030,7 @@ fn radix4_stage_thumb1<const S: u32, const DETECT: bool, const N: usize>(
                         "adds r1, #4",
                         "mov r12, r1",
                         "mov r0, r10",
-                        "adds r0, #12",
+                        "adds r0, #36",
                         "mov r10, r0",
                         "cmp r1, r11",
                         "beq 3f",
