@@ -3,7 +3,9 @@
 //!
 //! `main.rs` is thin: every subcommand is a library function here that tests call directly.
 
+pub mod channel;
 pub mod evaluate;
+pub mod impair;
 pub mod link;
 pub mod noise;
 pub mod rng;

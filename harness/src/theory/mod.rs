@@ -3,5 +3,14 @@
 //! * [`ber`]: bit and symbol error rates of Gray-mapped BPSK, QPSK and square M-QAM over AWGN and
 //!   flat Rayleigh fading (Cho & Yoon 2002; Proakis & Salehi 2008; Simon & Alouini 2005), plus
 //!   dB helpers and the Eb/N0 needed for a target BER.
+//! * [`ici`]: Doppler ICI for the classical spectrum (Russell & Stüber 1995; Li & Cimini 2001)
+//!   and CFO leakage, ICI, SIR and SNR loss (Moose 1994; Pollet et al. 1995; Shu et al. 2006).
+//! * [`fading`]: Clarke/Jakes fading statistics: ACF, Doppler PSD, envelope CDF, level-crossing
+//!   rate, average fade duration and coherence time (Clarke 1968; Jakes 1974; Rappaport 2002).
+//! * [`freq_corr`]: frequency correlation of exponential and discrete delay profiles and the
+//!   coherence bandwidth (exponential Fourier pair; Rappaport 2002; Jakes 1974).
 
 pub mod ber;
+pub mod fading;
+pub mod freq_corr;
+pub mod ici;

@@ -1,0 +1,195 @@
+//! Tapped delay line: `y[n] = Σ_l sqrt(p_l) · h_l[n] · x[n − d_l]`, every tap gain `h_l` an
+//! independent [`SosFading`] process evaluated per sample (coarse grid + linear interpolation,
+//! see [`crate::channel::sos`]). Streaming: call [`Tdl::process`] with chunks of any length;
+//! the delay line and the fading processes continue across calls.
+
+use flatbin::Cf32;
+use num_complex::Complex;
+
+use crate::channel::sos::{FadingParams, SosFading};
+use crate::rng::HarnessRng;
+
+/// How the gains vary in time.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+pub enum Variation {
+    /// Per-sample variation (the physical model; makes ICI).
+    Continuous,
+    /// Gains held constant over consecutive blocks of this many samples (counted from the
+    /// first sample), each at its value at the block start: a channel frozen over each OFDM
+    /// symbol (no ICI) — the negative control of ICI measurements.
+    HeldPerBlock(usize),
+}
+
+/// Samples per internal processing chunk (keeps the gain scratch in cache).
+const CHUNK: usize = 1024;
+
+#[derive(Clone, Debug)]
+struct Tap {
+    delay: usize,
+    amplitude: f32,
+    fading: SosFading,
+    /// Gain at the start of the current interpolation step, and its per-sample increment.
+    base: Complex<f32>,
+    delta: Complex<f32>,
+    /// Position inside the current step, samples.
+    pos: usize,
+    /// Gain held for the current block ([`Variation::HeldPerBlock`]).
+    held: Cf32,
+}
+
+impl Tap {
+    fn load_step(&mut self, first: Complex<f64>, next: Complex<f64>) {
+        let d = self.fading.step() as f64;
+        self.base = Complex::new(first.re as f32, first.im as f32);
+        self.delta = Complex::new(((next.re - first.re) / d) as f32, ((next.im - first.im) / d) as f32);
+        self.pos = 0;
+    }
+}
+
+/// A time-varying tapped delay line.
+#[derive(Clone, Debug)]
+pub struct Tdl {
+    taps: Vec<Tap>,
+    /// The last `max_delay` input samples, oldest first.
+    history: Vec<Cf32>,
+    /// Scratch: history followed by the current chunk, real and imaginary parts.
+    x_re: Vec<f32>,
+    x_im: Vec<f32>,
+    /// Scratch: the chunk's output, real and imaginary parts.
+    y_re: Vec<f32>,
+    y_im: Vec<f32>,
+    /// Samples processed so far.
+    time: u64,
+    variation: Variation,
+    /// Coarse value after the current step, per tap (the start of the next one).
+    upcoming: Vec<Complex<f64>>,
+}
+
+impl Tdl {
+    /// A line with taps at `(delay_samples, power)` (powers as given; normalise them to sum to
+    /// 1 for unit average gain), each tap an independent fading process with `params`, its
+    /// random parameters drawn from `rng` in tap order.
+    pub fn new(taps: &[(usize, f64)], params: &FadingParams, variation: Variation, rng: &mut HarnessRng) -> Self {
+        let max_delay = taps.iter().map(|t| t.0).max().unwrap_or(0);
+        let mut line = Self {
+            taps: Vec::with_capacity(taps.len()),
+            history: vec![Cf32::new(0.0, 0.0); max_delay],
+            x_re: Vec::with_capacity(max_delay + CHUNK),
+            x_im: Vec::with_capacity(max_delay + CHUNK),
+            y_re: Vec::with_capacity(CHUNK),
+            y_im: Vec::with_capacity(CHUNK),
+            time: 0,
+            variation,
+            upcoming: Vec::with_capacity(taps.len()),
+        };
+        for &(delay, power) in taps {
+            let mut fading = SosFading::new(params, rng);
+            let first = fading.next_coarse();
+            let next = fading.next_coarse();
+            let mut tap = Tap {
+                delay,
+                amplitude: power.max(0.0).sqrt() as f32,
+                fading,
+                base: Complex::new(0.0, 0.0),
+                delta: Complex::new(0.0, 0.0),
+                pos: 0,
+                held: Cf32::new(0.0, 0.0),
+            };
+            tap.load_step(first, next);
+            line.upcoming.push(next);
+            line.taps.push(tap);
+        }
+        line
+    }
+
+    /// Number of taps.
+    pub fn tap_count(&self) -> usize {
+        self.taps.len()
+    }
+
+    /// Interpolation step of the fading processes, samples.
+    pub fn step(&self) -> usize {
+        self.taps.first().map_or(1, |t| t.fading.step())
+    }
+
+    /// Passes `input` through the channel into `output` (same length; overwritten).
+    pub fn process(&mut self, input: &[Cf32], output: &mut [Cf32]) {
+        let len = input.len().min(output.len());
+        let mut done = 0;
+        while done < len {
+            let n = CHUNK.min(len - done);
+            self.process_chunk(&input[done..done + n], &mut output[done..done + n]);
+            done += n;
+        }
+    }
+
+    fn process_chunk(&mut self, input: &[Cf32], output: &mut [Cf32]) {
+        let n = input.len();
+        let max_delay = self.history.len();
+        // Split real and imaginary parts (structure of arrays): the per-tap loops below then
+        // vectorise.
+        self.x_re.clear();
+        self.x_im.clear();
+        for v in self.history.iter().chain(input) {
+            self.x_re.push(v.re);
+            self.x_im.push(v.im);
+        }
+        self.y_re.clear();
+        self.y_re.resize(n, 0.0);
+        self.y_im.clear();
+        self.y_im.resize(n, 0.0);
+        for (tap, upcoming) in self.taps.iter_mut().zip(self.upcoming.iter_mut()) {
+            let off = max_delay - tap.delay;
+            let x_re = &self.x_re[off..off + n];
+            let x_im = &self.x_im[off..off + n];
+            let a = tap.amplitude;
+            let mut i = 0;
+            while i < n {
+                let step = tap.fading.step();
+                let seg = (step - tap.pos).min(n - i);
+                let (d_re, d_im) = (tap.delta.re * a, tap.delta.im * a);
+                let s_re = (tap.base.re + tap.delta.re * tap.pos as f32) * a;
+                let s_im = (tap.base.im + tap.delta.im * tap.pos as f32) * a;
+                match self.variation {
+                    Variation::Continuous => {
+                        let ys = self.y_re[i..i + seg].iter_mut().zip(self.y_im[i..i + seg].iter_mut());
+                        let xs = x_re[i..i + seg].iter().zip(&x_im[i..i + seg]);
+                        for (j, ((yr, yi), (xr, xi))) in ys.zip(xs).enumerate() {
+                            let g_re = s_re + d_re * j as f32;
+                            let g_im = s_im + d_im * j as f32;
+                            *yr += g_re * xr - g_im * xi;
+                            *yi += g_re * xi + g_im * xr;
+                        }
+                    }
+                    Variation::HeldPerBlock(block) => {
+                        let block = block.max(1) as u64;
+                        for j in 0..seg {
+                            if (self.time + (i + j) as u64).is_multiple_of(block) {
+                                tap.held = Cf32::new(s_re + d_re * j as f32, s_im + d_im * j as f32);
+                            }
+                            let (g, x) = (tap.held, Cf32::new(x_re[i + j], x_im[i + j]));
+                            self.y_re[i + j] += g.re * x.re - g.im * x.im;
+                            self.y_im[i + j] += g.re * x.im + g.im * x.re;
+                        }
+                    }
+                }
+                tap.pos += seg;
+                i += seg;
+                if tap.pos == step {
+                    let first = *upcoming;
+                    let next = tap.fading.next_coarse();
+                    tap.load_step(first, next);
+                    *upcoming = next;
+                }
+            }
+        }
+        for ((o, r), im) in output.iter_mut().zip(&self.y_re).zip(&self.y_im) {
+            *o = Cf32::new(*r, *im);
+        }
+        let keep = self.x_re.len() - max_delay;
+        for (h, (r, im)) in self.history.iter_mut().zip(self.x_re[keep..].iter().zip(&self.x_im[keep..])) {
+            *h = Cf32::new(*r, *im);
+        }
+        self.time += n as u64;
+    }
+}
