@@ -17,12 +17,19 @@ fn bench(c: &mut Criterion) {
     let fd = 0.1 * fs / n_fft as f64; // fd·T = 0.1
     let params = FadingParams::rayleigh(fd, fs, n_fft);
     let len = 16_384;
-    let input: Vec<Cf32> = (0..len).map(|i| Cf32::new((i % 7) as f32 - 3.0, (i % 5) as f32 - 2.0)).collect();
+    let input: Vec<Cf32> = (0..len)
+        .map(|i| Cf32::new((i % 7) as f32 - 3.0, (i % 5) as f32 - 2.0))
+        .collect();
     let mut output = vec![Cf32::new(0.0, 0.0); len];
     let mut group = c.benchmark_group("channel");
     for taps in [4usize, 11, 41] {
         let profile: Vec<(usize, f64)> = (0..taps).map(|l| (l, 1.0 / taps as f64)).collect();
-        let mut tdl = Tdl::new(&profile, &params, Variation::Continuous, &mut stream_rng(1, 0));
+        let mut tdl = Tdl::new(
+            &profile,
+            &params,
+            Variation::Continuous,
+            &mut stream_rng(1, 0),
+        );
         group.throughput(Throughput::Elements((len * taps) as u64));
         group.bench_function(BenchmarkId::new("tap_samples", taps), |b| {
             b.iter(|| tdl.process(black_box(&input), black_box(&mut output)))

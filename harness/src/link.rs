@@ -135,3 +135,85 @@ fn awgn_errors_n<const N: usize>(
     }
     Ok(count)
 }
+
+/// Bit errors of `modulation` over flat Rayleigh block fading with ideal channel knowledge:
+/// every OFDM symbol sees one independent gain `h` (a fresh [`SosFading`] tap at a random
+/// time, constant over the symbol), AWGN at `es_n0_db` (mean Es/N0 per data subcarrier), and
+/// the receiver divides by the true `h` and weights its LLRs by `|h|²/N0`.
+///
+/// Returns the count and the standard deviation of the per-symbol BER (errors are correlated
+/// inside a symbol; the number of independent draws is the number of symbols).
+///
+/// [`SosFading`]: crate::channel::sos::SosFading
+pub fn flat_rayleigh_errors(
+    numerology: &Numerology,
+    modulation: Modulation,
+    es_n0_db: f64,
+    rng: &mut HarnessRng,
+    stop: StopRule,
+) -> Result<(ErrorCount, f64)> {
+    with_fft_len!(
+        numerology.fft_len(),
+        flat_rayleigh_errors_n(numerology, modulation, es_n0_db, rng, stop)
+    )
+}
+
+fn flat_rayleigh_errors_n<const N: usize>(
+    numerology: &Numerology,
+    modulation: Modulation,
+    es_n0_db: f64,
+    rng: &mut HarnessRng,
+    stop: StopRule,
+) -> Result<(ErrorCount, f64)> {
+    use crate::channel::sos::{FadingParams, SosFading};
+    let mut tx = Transmitter::new(*numerology, MicroFft::<N>::new())?;
+    let mut front = Front::new(numerology, MicroFft::<N>::new())?;
+    let n0 = n0_for_es_n0_db(es_n0_db);
+    let k = modulation.bits_per_symbol();
+    let fading = FadingParams::rayleigh(100.0, f64::from(numerology.sample_rate_hz()), N);
+    let mut samples = vec![Cf32::new(0.0, 0.0); numerology.symbol_len()];
+    let mut bins: Box<[Cf32; N]> = Box::new([Cf32::new(0.0, 0.0); N]);
+    let mut bits = Vec::with_capacity(numerology.max_data_len() * k);
+    let mut llrs = [0.0f32; 8];
+    let mut count = ErrorCount {
+        bits: 0,
+        errors: 0,
+        symbols: 0,
+    };
+    let (mut sum, mut sum_sq) = (0.0f64, 0.0f64);
+    let mut symbol: u32 = 0;
+    while count.errors < stop.min_errors && count.bits < stop.max_bits {
+        bits.clear();
+        bits.extend(
+            (0..tx.bits_per_ofdm_symbol(modulation, symbol)).map(|_| rng.random::<u8>() & 1),
+        );
+        tx.modulate(modulation, &bits, symbol, &mut samples)?;
+        let h = SosFading::new(&fading, rng).gain_exact(rng.random_range(0..1_000_000));
+        let h = Cf32::new(h.re as f32, h.im as f32);
+        samples.iter_mut().for_each(|s| *s *= h);
+        add_awgn(rng, &mut samples, n0);
+        front.demodulate(&samples, &mut bins)?;
+        let weight = (f64::from(h.norm_sqr()) / n0) as f32;
+        let mut errors = 0u64;
+        for (fft_index, sent) in numerology.data_bins(symbol).zip(bits.chunks_exact(k)) {
+            llr_max_log(modulation, bins[fft_index] / h, weight, &mut llrs)?;
+            for (l, b) in llrs.iter().zip(sent) {
+                errors += u64::from(u8::from(*l < 0.0) != *b);
+            }
+        }
+        let ber = errors as f64 / bits.len() as f64;
+        sum += ber;
+        sum_sq += ber * ber;
+        count.errors += errors;
+        count.bits += bits.len() as u64;
+        count.symbols += 1;
+        symbol = symbol.wrapping_add(1);
+    }
+    let n = count.symbols as f64;
+    let sd = if n > 1.0 {
+        ((sum_sq - sum * sum / n) / (n - 1.0)).max(0.0).sqrt()
+    } else {
+        f64::INFINITY
+    };
+    Ok((count, sd))
+}

@@ -12,7 +12,12 @@ use flatbin_harness::rng::stream_rng;
 
 /// Per-sample gains of one tap through the tapped delay line (input all ones).
 fn gains(params: &FadingParams, seed: u64, len: usize) -> Vec<Cf32> {
-    let mut tdl = Tdl::new(&[(0, 1.0)], params, Variation::Continuous, &mut stream_rng(seed, 0));
+    let mut tdl = Tdl::new(
+        &[(0, 1.0)],
+        params,
+        Variation::Continuous,
+        &mut stream_rng(seed, 0),
+    );
     let ones = vec![Cf32::new(1.0, 0.0); len];
     let mut out = vec![Cf32::new(0.0, 0.0); len];
     tdl.process(&ones, &mut out);
@@ -25,7 +30,14 @@ fn autocorrelation_follows_j0() {
     // fd·τ = 1. Clarke/Jakes: E[h(t+τ) h*(t)] = J0(2π fd τ). Required |error| ≤ 0.03.
     let fs = 10_000.0;
     let fd = 100.0; // 100 samples per 1/fd
-    let params = FadingParams { doppler_hz: fd, sample_rate_hz: fs, sinusoids: 16, rician_k: 0.0, los_angle_rad: 0.0, step: 8 };
+    let params = FadingParams {
+        doppler_hz: fd,
+        sample_rate_hz: fs,
+        sinusoids: 16,
+        rician_k: 0.0,
+        los_angle_rad: 0.0,
+        step: 8,
+    };
     let (len, lags) = (20_000usize, 100usize);
     let mut acf = vec![0.0f64; lags + 1];
     let realisations = 100;
@@ -41,8 +53,12 @@ fn autocorrelation_follows_j0() {
         }
     }
     for (lag, a) in acf.iter().enumerate() {
-        let want = libm::j0(2.0 * std::f64::consts::PI * fd * lag as f64 / fs);
-        assert!((a - want).abs() <= 0.03, "fd·τ = {}: {a:.4} vs J0 {want:.4}", lag as f64 * fd / fs);
+        let want = flatbin_harness::theory::fading::clarke_acf(fd, lag as f64 / fs);
+        assert!(
+            (a - want).abs() <= 0.03,
+            "fd·τ = {}: {a:.4} vs J0 {want:.4}",
+            lag as f64 * fd / fs
+        );
     }
 }
 
@@ -52,7 +68,14 @@ fn envelope_is_rayleigh_ks_test() {
     // Rayleigh CDF P(R ≤ r) = 1 − exp(−r²) for E[R²] = 1 (Clarke 1968). Kolmogorov–Smirnov at
     // the 1 % level: D < 1.628/sqrt(n) (asymptotic critical value, common practice).
     let n = 20_000usize;
-    let params = FadingParams { doppler_hz: 50.0, sample_rate_hz: 1e4, sinusoids: 64, rician_k: 0.0, los_angle_rad: 0.0, step: 1 };
+    let params = FadingParams {
+        doppler_hz: 50.0,
+        sample_rate_hz: 1e4,
+        sinusoids: 64,
+        rician_k: 0.0,
+        los_angle_rad: 0.0,
+        step: 1,
+    };
     let mut rng = stream_rng(77, 1);
     let mut r: Vec<f64> = (0..n)
         .map(|i| {
@@ -64,7 +87,9 @@ fn envelope_is_rayleigh_ks_test() {
     let mut d = 0.0f64;
     for (i, x) in r.iter().enumerate() {
         let cdf = 1.0 - (-x * x).exp();
-        d = d.max((cdf - i as f64 / n as f64).abs()).max(((i + 1) as f64 / n as f64 - cdf).abs());
+        d = d
+            .max((cdf - i as f64 / n as f64).abs())
+            .max(((i + 1) as f64 / n as f64 - cdf).abs());
     }
     let critical = 1.628 / (n as f64).sqrt();
     assert!(d < critical, "KS D = {d:.5} ≥ {critical:.5}");
@@ -77,11 +102,23 @@ fn level_crossing_rate_and_fade_duration() {
     // sqrt(2π)). Tolerance (REFERENCES item 3): ±(4/sqrt(crossings) + 2 %) relative.
     let fs = 100_000.0;
     let fd = 100.0;
-    let params = FadingParams { doppler_hz: fd, sample_rate_hz: fs, sinusoids: 64, rician_k: 0.0, los_angle_rad: 0.0, step: 8 };
+    let params = FadingParams {
+        doppler_hz: fd,
+        sample_rate_hz: fs,
+        sinusoids: 64,
+        rician_k: 0.0,
+        los_angle_rad: 0.0,
+        step: 8,
+    };
     let records = 20u64;
     let len = 100_000usize; // 100/fd per record
     let envelopes: Vec<Vec<f32>> = (0..records)
-        .map(|r| gains(&params, 500 + r, len).iter().map(|g| g.norm()).collect())
+        .map(|r| {
+            gains(&params, 500 + r, len)
+                .iter()
+                .map(|g| g.norm())
+                .collect()
+        })
         .collect();
     let total_s = (records as usize * len) as f64 / fs;
     for rho in [0.1f64, 0.3, 1.0] {
@@ -97,10 +134,17 @@ fn level_crossing_rate_and_fade_duration() {
         let lcr = crossings as f64 / total_s;
         let afd = (below as f64 / fs) / crossings as f64;
         let lcr_theory = (2.0 * std::f64::consts::PI).sqrt() * fd * rho * (-rho * rho).exp();
-        let afd_theory = ((rho * rho).exp() - 1.0) / (rho * fd * (2.0 * std::f64::consts::PI).sqrt());
+        let afd_theory =
+            ((rho * rho).exp() - 1.0) / (rho * fd * (2.0 * std::f64::consts::PI).sqrt());
         let tol = 4.0 / (crossings as f64).sqrt() + 0.02;
-        assert!((lcr / lcr_theory - 1.0).abs() <= tol, "ρ={rho}: LCR {lcr:.2} vs {lcr_theory:.2} ({crossings} crossings)");
-        assert!((afd / afd_theory - 1.0).abs() <= tol, "ρ={rho}: AFD {afd:.5} vs {afd_theory:.5}");
+        assert!(
+            (lcr / lcr_theory - 1.0).abs() <= tol,
+            "ρ={rho}: LCR {lcr:.2} vs {lcr_theory:.2} ({crossings} crossings)"
+        );
+        assert!(
+            (afd / afd_theory - 1.0).abs() <= tol,
+            "ρ={rho}: AFD {afd:.5} vs {afd_theory:.5}"
+        );
     }
 }
 

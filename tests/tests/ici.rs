@@ -14,14 +14,19 @@ use flatbin_harness::channel::sos::{interpolation_mse_bound, FadingParams, SosFa
 use flatbin_harness::channel::tdl::{Tdl, Variation};
 use flatbin_harness::impair::frequency_offset;
 use flatbin_harness::rng::stream_rng;
-use flatbin_harness::theory::ici::{cfo_ici_exact, cfo_s, doppler_ici_approx_24, doppler_ici_bound_12, doppler_ici_exact};
+use flatbin_harness::theory::ici::{
+    cfo_ici_exact, cfo_s, doppler_ici_approx_24, doppler_ici_bound_12, doppler_ici_exact,
+};
 use rand::RngExt;
 
 const FDT: [f64; 5] = [0.01, 0.02, 0.05, 0.1, 0.2];
 
 fn qpsk<R: rand::Rng>(rng: &mut R) -> Cf32 {
     let a = std::f32::consts::FRAC_1_SQRT_2;
-    Cf32::new(if rng.random::<bool>() { a } else { -a }, if rng.random::<bool>() { a } else { -a })
+    Cf32::new(
+        if rng.random::<bool>() { a } else { -a },
+        if rng.random::<bool>() { a } else { -a },
+    )
 }
 
 /// Measured ICI power (fraction of received power) over `symbols` symbols with data on all N
@@ -64,7 +69,8 @@ fn measure_ici<const N: usize>(fdt: f64, symbols: u64, variation: Variation) -> 
         .map(|c| c.iter().map(|b| b.0).sum::<f64>() / c.iter().map(|b| b.1).sum::<f64>())
         .collect();
     let mean = ratios.iter().sum::<f64>() / ratios.len() as f64;
-    let sd = (ratios.iter().map(|r| (r - mean).powi(2)).sum::<f64>() / (ratios.len() - 1) as f64).sqrt();
+    let sd =
+        (ratios.iter().map(|r| (r - mean).powi(2)).sum::<f64>() / (ratios.len() - 1) as f64).sqrt();
     (err / pow, sd / (ratios.len() as f64).sqrt())
 }
 
@@ -80,8 +86,15 @@ fn check_doppler<const N: usize>() {
         );
         // Russell & Stüber exact sum: within 5 % (the tolerance; the batch-means
         // standard error is printed and must itself be well inside it).
-        assert!((measured / exact - 1.0).abs() <= 0.05, "N={N} fd·T={fdt}: {measured} vs {exact}");
-        assert!(4.0 * se / exact <= 0.05, "sample too small: 4σ = {}", 4.0 * se / exact);
+        assert!(
+            (measured / exact - 1.0).abs() <= 0.05,
+            "N={N} fd·T={fdt}: {measured} vs {exact}"
+        );
+        assert!(
+            4.0 * se / exact <= 0.05,
+            "sample too small: 4σ = {}",
+            4.0 * se / exact
+        );
         // Li & Cimini: below the /12 bound; the /24 approximation within 3 % up to fd·T = 0.2
         // (REFERENCES table 1a: 4 % high at 0.2, i.e. the measured value sits below it).
         assert!(measured <= doppler_ici_bound_12(fdt));
@@ -136,7 +149,10 @@ fn interpolation_error_is_30_db_below_the_ici() {
                 params.step,
                 interpolation_mse_bound(fdt / n as f64, params.step)
             );
-            assert!(margin_db >= 30.0, "N={n} fd·T={fdt}: only {margin_db:.1} dB");
+            assert!(
+                margin_db >= 30.0,
+                "N={n} fd·T={fdt}: only {margin_db:.1} dB"
+            );
         }
     }
 }
@@ -167,6 +183,9 @@ fn cfo_ici_matches_exact_sum() {
         let measured = e / p;
         let exact = cfo_ici_exact(eps, N);
         println!("ε={eps}: measured CFO ICI {measured:.5e}, exact {exact:.5e}");
-        assert!((measured / exact - 1.0).abs() <= 0.02, "ε={eps}: {measured} vs {exact}");
+        assert!(
+            (measured / exact - 1.0).abs() <= 0.02,
+            "ε={eps}: {measured} vs {exact}"
+        );
     }
 }

@@ -41,7 +41,10 @@ impl Tap {
     fn load_step(&mut self, first: Complex<f64>, next: Complex<f64>) {
         let d = self.fading.step() as f64;
         self.base = Complex::new(first.re as f32, first.im as f32);
-        self.delta = Complex::new(((next.re - first.re) / d) as f32, ((next.im - first.im) / d) as f32);
+        self.delta = Complex::new(
+            ((next.re - first.re) / d) as f32,
+            ((next.im - first.im) / d) as f32,
+        );
         self.pos = 0;
     }
 }
@@ -58,6 +61,9 @@ pub struct Tdl {
     /// Scratch: the chunk's output, real and imaginary parts.
     y_re: Vec<f32>,
     y_im: Vec<f32>,
+    /// Scratch: one tap's gains over the chunk.
+    g_re: Vec<f32>,
+    g_im: Vec<f32>,
     /// Samples processed so far.
     time: u64,
     variation: Variation,
@@ -69,7 +75,12 @@ impl Tdl {
     /// A line with taps at `(delay_samples, power)` (powers as given; normalise them to sum to
     /// 1 for unit average gain), each tap an independent fading process with `params`, its
     /// random parameters drawn from `rng` in tap order.
-    pub fn new(taps: &[(usize, f64)], params: &FadingParams, variation: Variation, rng: &mut HarnessRng) -> Self {
+    pub fn new(
+        taps: &[(usize, f64)],
+        params: &FadingParams,
+        variation: Variation,
+        rng: &mut HarnessRng,
+    ) -> Self {
         let max_delay = taps.iter().map(|t| t.0).max().unwrap_or(0);
         let mut line = Self {
             taps: Vec::with_capacity(taps.len()),
@@ -78,6 +89,8 @@ impl Tdl {
             x_im: Vec::with_capacity(max_delay + CHUNK),
             y_re: Vec::with_capacity(CHUNK),
             y_im: Vec::with_capacity(CHUNK),
+            g_re: Vec::with_capacity(CHUNK),
+            g_im: Vec::with_capacity(CHUNK),
             time: 0,
             variation,
             upcoming: Vec::with_capacity(taps.len()),
@@ -138,10 +151,10 @@ impl Tdl {
         self.y_re.resize(n, 0.0);
         self.y_im.clear();
         self.y_im.resize(n, 0.0);
+        self.g_re.resize(n, 0.0);
+        self.g_im.resize(n, 0.0);
         for (tap, upcoming) in self.taps.iter_mut().zip(self.upcoming.iter_mut()) {
-            let off = max_delay - tap.delay;
-            let x_re = &self.x_re[off..off + n];
-            let x_im = &self.x_im[off..off + n];
+            // Pass 1: this chunk's gains (amplitude included), linear inside each step.
             let a = tap.amplitude;
             let mut i = 0;
             while i < n {
@@ -150,29 +163,12 @@ impl Tdl {
                 let (d_re, d_im) = (tap.delta.re * a, tap.delta.im * a);
                 let s_re = (tap.base.re + tap.delta.re * tap.pos as f32) * a;
                 let s_im = (tap.base.im + tap.delta.im * tap.pos as f32) * a;
-                match self.variation {
-                    Variation::Continuous => {
-                        let ys = self.y_re[i..i + seg].iter_mut().zip(self.y_im[i..i + seg].iter_mut());
-                        let xs = x_re[i..i + seg].iter().zip(&x_im[i..i + seg]);
-                        for (j, ((yr, yi), (xr, xi))) in ys.zip(xs).enumerate() {
-                            let g_re = s_re + d_re * j as f32;
-                            let g_im = s_im + d_im * j as f32;
-                            *yr += g_re * xr - g_im * xi;
-                            *yi += g_re * xi + g_im * xr;
-                        }
-                    }
-                    Variation::HeldPerBlock(block) => {
-                        let block = block.max(1) as u64;
-                        for j in 0..seg {
-                            if (self.time + (i + j) as u64).is_multiple_of(block) {
-                                tap.held = Cf32::new(s_re + d_re * j as f32, s_im + d_im * j as f32);
-                            }
-                            let (g, x) = (tap.held, Cf32::new(x_re[i + j], x_im[i + j]));
-                            self.y_re[i + j] += g.re * x.re - g.im * x.im;
-                            self.y_im[i + j] += g.re * x.im + g.im * x.re;
-                        }
-                    }
-                }
+                kernels::ramp(
+                    &mut self.g_re[i..i + seg],
+                    &mut self.g_im[i..i + seg],
+                    (s_re, s_im),
+                    (d_re, d_im),
+                );
                 tap.pos += seg;
                 i += seg;
                 if tap.pos == step {
@@ -182,14 +178,103 @@ impl Tdl {
                     *upcoming = next;
                 }
             }
+            if let Variation::HeldPerBlock(block) = self.variation {
+                let block = block.max(1) as u64;
+                let gs = self.g_re.iter_mut().zip(self.g_im.iter_mut());
+                for (k, (gr, gi)) in gs.enumerate() {
+                    if (self.time + k as u64).is_multiple_of(block) {
+                        tap.held = Cf32::new(*gr, *gi);
+                    }
+                    *gr = tap.held.re;
+                    *gi = tap.held.im;
+                }
+            }
+            // Pass 2: y += g · x[n − d] over the whole chunk (vectorised).
+            let off = max_delay - tap.delay;
+            let (x_re, x_im) = (&self.x_re[off..off + n], &self.x_im[off..off + n]);
+            kernels::mac(
+                &mut self.y_re,
+                &mut self.y_im,
+                &self.g_re,
+                &self.g_im,
+                x_re,
+                x_im,
+            );
         }
         for ((o, r), im) in output.iter_mut().zip(&self.y_re).zip(&self.y_im) {
             *o = Cf32::new(*r, *im);
         }
         let keep = self.x_re.len() - max_delay;
-        for (h, (r, im)) in self.history.iter_mut().zip(self.x_re[keep..].iter().zip(&self.x_im[keep..])) {
+        for (h, (r, im)) in self
+            .history
+            .iter_mut()
+            .zip(self.x_re[keep..].iter().zip(&self.x_im[keep..]))
+        {
             *h = Cf32::new(*r, *im);
         }
         self.time += n as u64;
+    }
+}
+
+/// The two inner loops, compiled twice: for the baseline target and, chosen at run time, with
+/// AVX2 enabled (wider vectors, the same IEEE operations in the same order — no FMA — so both
+/// give the same bits).
+mod kernels {
+    macro_rules! define {
+        ($ramp:ident, $mac:ident $(, $feature:literal)?) => {
+            /// `g[j] = start + step·j` (complex, split parts).
+            $(#[target_feature(enable = $feature)])?
+            pub(super) fn $ramp(g_re: &mut [f32], g_im: &mut [f32], start: (f32, f32), step: (f32, f32)) {
+                for (j, (gr, gi)) in g_re.iter_mut().zip(g_im.iter_mut()).enumerate() {
+                    *gr = start.0 + step.0 * j as f32;
+                    *gi = start.1 + step.1 * j as f32;
+                }
+            }
+            /// `y += g·x` (complex, split parts).
+            $(#[target_feature(enable = $feature)])?
+            pub(super) fn $mac(y_re: &mut [f32], y_im: &mut [f32], g_re: &[f32], g_im: &[f32], x_re: &[f32], x_im: &[f32]) {
+                let ys = y_re.iter_mut().zip(y_im.iter_mut());
+                let gs = g_re.iter().zip(g_im);
+                for ((yr, yi), ((gr, gi), (xr, xi))) in ys.zip(gs.zip(x_re.iter().zip(x_im))) {
+                    *yr += gr * xr - gi * xi;
+                    *yi += gr * xi + gi * xr;
+                }
+            }
+        };
+    }
+    define!(ramp_base, mac_base);
+    #[cfg(target_arch = "x86_64")]
+    define!(ramp_avx2, mac_avx2, "avx2");
+
+    #[cfg(target_arch = "x86_64")]
+    fn has_avx2() -> bool {
+        use std::sync::OnceLock;
+        static AVX2: OnceLock<bool> = OnceLock::new();
+        *AVX2.get_or_init(|| std::arch::is_x86_feature_detected!("avx2"))
+    }
+
+    pub(super) fn ramp(g_re: &mut [f32], g_im: &mut [f32], start: (f32, f32), step: (f32, f32)) {
+        #[cfg(target_arch = "x86_64")]
+        if has_avx2() {
+            // SAFETY: the CPU supports AVX2 (checked at run time).
+            return unsafe { ramp_avx2(g_re, g_im, start, step) };
+        }
+        ramp_base(g_re, g_im, start, step)
+    }
+
+    pub(super) fn mac(
+        y_re: &mut [f32],
+        y_im: &mut [f32],
+        g_re: &[f32],
+        g_im: &[f32],
+        x_re: &[f32],
+        x_im: &[f32],
+    ) {
+        #[cfg(target_arch = "x86_64")]
+        if has_avx2() {
+            // SAFETY: the CPU supports AVX2 (checked at run time).
+            return unsafe { mac_avx2(y_re, y_im, g_re, g_im, x_re, x_im) };
+        }
+        mac_base(y_re, y_im, g_re, g_im, x_re, x_im)
     }
 }
