@@ -15,7 +15,10 @@ fn bench(c: &mut Criterion) {
     let fs = 1.0e6;
     let n_fft = 64;
     let fd = 0.1 * fs / n_fft as f64; // fd·T = 0.1
-    let params = FadingParams::rayleigh(fd, fs, n_fft);
+    let mut params = FadingParams::rayleigh(fd, fs, n_fft);
+    if let Ok(s) = std::env::var("FLATBIN_BENCH_STEP") {
+        params.step = s.parse().unwrap_or(params.step);
+    }
     let len = 16_384;
     let input: Vec<Cf32> = (0..len)
         .map(|i| Cf32::new((i % 7) as f32 - 3.0, (i % 5) as f32 - 2.0))

@@ -200,11 +200,22 @@ impl SosFading {
 
     /// The gain at the current coarse point, then advance one step (D samples).
     pub fn next_coarse(&mut self) -> Complex<f64> {
-        let (mut h_re, mut h_im) = (0.0f32, 0.0f32);
-        for ((s, wr), wi) in self.s_re.iter().zip(&self.w_re).zip(&self.w_im) {
-            h_re += wr * s;
-            h_im += wi * s;
+        // Eight partial sums (a fixed order, so the result is reproducible) let the sum
+        // vectorise; a single running sum would be one long dependency chain.
+        let (mut acc_re, mut acc_im) = ([0.0f32; 8], [0.0f32; 8]);
+        let lanes = self
+            .s_re
+            .chunks(8)
+            .zip(self.w_re.chunks(8))
+            .zip(self.w_im.chunks(8));
+        for ((s, wr), wi) in lanes {
+            for (k, ((s, wr), wi)) in s.iter().zip(wr).zip(wi).enumerate() {
+                acc_re[k] += wr * s;
+                acc_im[k] += wi * s;
+            }
         }
+        let h_re: f32 = acc_re.iter().sum();
+        let h_im: f32 = acc_im.iter().sum();
         let mut h = Complex::new(f64::from(h_re), f64::from(h_im));
         let (a, w, p) = self.los;
         if a > 0.0 {
