@@ -10,4 +10,5 @@ pub mod link;
 pub mod noise;
 pub mod rng;
 pub mod scenario;
+pub mod simd;
 pub mod theory;

@@ -163,17 +163,24 @@ impl SosFading {
             .iter()
             .map(|w| Complex::from_polar(1.0, w * step as f64))
             .collect();
+        // f32 working arrays padded to a multiple of 8 lanes (zero weight, unit rotation).
+        let padded = m.div_ceil(8) * 8;
+        let pad = |v: Vec<f32>, fill: f32| {
+            let mut v = v;
+            v.resize(padded, fill);
+            v
+        };
         let mut s = Self {
-            w_re: weight.iter().map(|c| c.re as f32).collect(),
-            w_im: weight.iter().map(|c| c.im as f32).collect(),
-            r_re: rot.iter().map(|c| c.re as f32).collect(),
-            r_im: rot.iter().map(|c| c.im as f32).collect(),
+            w_re: pad(weight.iter().map(|c| c.re as f32).collect(), 0.0),
+            w_im: pad(weight.iter().map(|c| c.im as f32).collect(), 0.0),
+            r_re: pad(rot.iter().map(|c| c.re as f32).collect(), 1.0),
+            r_im: pad(rot.iter().map(|c| c.im as f32).collect(), 0.0),
             omega,
             phi,
             weight,
             los,
-            s_re: vec![0.0; m],
-            s_im: vec![0.0; m],
+            s_re: vec![0.0; padded],
+            s_im: vec![0.0; padded],
             step,
             coarse: 0,
         };
@@ -198,24 +205,85 @@ impl SosFading {
         h + Complex::from_polar(a, w * t + p)
     }
 
+    /// The gains at the next `out.len()` coarse points (see [`next_coarse`](Self::next_coarse)),
+    /// advancing as many steps; on x86-64 with AVX2 (checked at run time) the oscillator loop
+    /// runs on 8-lane vectors (same IEEE operations, same bits).
+    pub fn coarse_points(&mut self, out: &mut [Complex<f64>]) {
+        #[cfg(target_arch = "x86_64")]
+        if crate::simd::has_avx2() {
+            // SAFETY: the CPU supports AVX2 (checked at run time).
+            return unsafe { self.coarse_points_avx2(out) };
+        }
+        for o in out {
+            *o = self.next_coarse();
+        }
+    }
+
+    /// [`next_coarse`](Self::next_coarse) with 8-lane AVX vectors: the same products and sums
+    /// in the same order (lane k accumulates sinusoids k, k+8, …; then the same pairwise tree),
+    /// so the same bits.
+    #[cfg(target_arch = "x86_64")]
+    #[target_feature(enable = "avx2")]
+    fn coarse_points_avx2(&mut self, out: &mut [Complex<f64>]) {
+        use std::arch::x86_64::*;
+        /// ((a0+a4)+(a2+a6)) + ((a1+a5)+(a3+a7)).
+        #[target_feature(enable = "avx2")]
+        fn tree(v: __m256) -> f32 {
+            let q = _mm_add_ps(_mm256_castps256_ps128(v), _mm256_extractf128_ps(v, 1));
+            let h = _mm_add_ps(q, _mm_movehl_ps(q, q));
+            _mm_cvtss_f32(_mm_add_ss(h, _mm_shuffle_ps(h, h, 1)))
+        }
+        let chunks = self.s_re.len() / 8;
+        for o in out.iter_mut() {
+            if self.los.0 > 0.0 || (self.coarse + 1).is_multiple_of(REANCHOR_STEPS) {
+                *o = self.next_coarse();
+                continue;
+            }
+            let (mut acc_re, mut acc_im) = (_mm256_setzero_ps(), _mm256_setzero_ps());
+            for c in 0..chunks {
+                let at = 8 * c;
+                // SAFETY: every array holds `8·chunks` elements (padded at construction).
+                unsafe {
+                    let sr = _mm256_loadu_ps(self.s_re.as_ptr().add(at));
+                    let si = _mm256_loadu_ps(self.s_im.as_ptr().add(at));
+                    let wr = _mm256_loadu_ps(self.w_re.as_ptr().add(at));
+                    let wi = _mm256_loadu_ps(self.w_im.as_ptr().add(at));
+                    acc_re = _mm256_add_ps(acc_re, _mm256_mul_ps(wr, sr));
+                    acc_im = _mm256_add_ps(acc_im, _mm256_mul_ps(wi, sr));
+                    let rr = _mm256_loadu_ps(self.r_re.as_ptr().add(at));
+                    let ri = _mm256_loadu_ps(self.r_im.as_ptr().add(at));
+                    let nr = _mm256_sub_ps(_mm256_mul_ps(sr, rr), _mm256_mul_ps(si, ri));
+                    let ni = _mm256_add_ps(_mm256_mul_ps(sr, ri), _mm256_mul_ps(si, rr));
+                    _mm256_storeu_ps(self.s_re.as_mut_ptr().add(at), nr);
+                    _mm256_storeu_ps(self.s_im.as_mut_ptr().add(at), ni);
+                }
+            }
+            *o = Complex::new(f64::from(tree(acc_re)), f64::from(tree(acc_im)));
+            self.coarse += 1;
+        }
+    }
+
     /// The gain at the current coarse point, then advance one step (D samples).
+    #[inline(always)]
     pub fn next_coarse(&mut self) -> Complex<f64> {
         // Eight partial sums (a fixed order, so the result is reproducible) let the sum
-        // vectorise; a single running sum would be one long dependency chain.
+        // vectorise; a single running sum would be one long dependency chain. The arrays are
+        // padded to a multiple of 8 with zero weights.
         let (mut acc_re, mut acc_im) = ([0.0f32; 8], [0.0f32; 8]);
         let lanes = self
             .s_re
-            .chunks(8)
-            .zip(self.w_re.chunks(8))
-            .zip(self.w_im.chunks(8));
+            .chunks_exact(8)
+            .zip(self.w_re.chunks_exact(8))
+            .zip(self.w_im.chunks_exact(8));
         for ((s, wr), wi) in lanes {
-            for (k, ((s, wr), wi)) in s.iter().zip(wr).zip(wi).enumerate() {
-                acc_re[k] += wr * s;
-                acc_im[k] += wi * s;
+            for k in 0..8 {
+                acc_re[k] += wr[k] * s[k];
+                acc_im[k] += wi[k] * s[k];
             }
         }
-        let h_re: f32 = acc_re.iter().sum();
-        let h_im: f32 = acc_im.iter().sum();
+        // A fixed pairwise tree (three dependent additions, not eight).
+        let tree = |a: [f32; 8]| ((a[0] + a[4]) + (a[2] + a[6])) + ((a[1] + a[5]) + (a[3] + a[7]));
+        let (h_re, h_im) = (tree(acc_re), tree(acc_im));
         let mut h = Complex::new(f64::from(h_re), f64::from(h_im));
         let (a, w, p) = self.los;
         if a > 0.0 {
@@ -225,11 +293,17 @@ impl SosFading {
         if self.coarse.is_multiple_of(REANCHOR_STEPS) {
             self.reanchor();
         } else {
-            let states = self.s_re.iter_mut().zip(self.s_im.iter_mut());
-            for ((sr, si), (rr, ri)) in states.zip(self.r_re.iter().zip(&self.r_im)) {
-                let (a, b) = (*sr, *si);
-                *sr = a * rr - b * ri;
-                *si = a * ri + b * rr;
+            let states = self
+                .s_re
+                .chunks_exact_mut(8)
+                .zip(self.s_im.chunks_exact_mut(8));
+            let rots = self.r_re.chunks_exact(8).zip(self.r_im.chunks_exact(8));
+            for ((sr, si), (rr, ri)) in states.zip(rots) {
+                for k in 0..8 {
+                    let (a, b) = (sr[k], si[k]);
+                    sr[k] = a * rr[k] - b * ri[k];
+                    si[k] = a * ri[k] + b * rr[k];
+                }
             }
         }
         h

@@ -54,14 +54,16 @@ impl Tap {
 #[derive(Clone, Debug)]
 pub struct Tdl {
     taps: Vec<Tap>,
-    /// The last `max_delay` input samples, oldest first.
-    history: Vec<Cf32>,
-    /// Scratch: history followed by the current chunk, real and imaginary parts.
+    /// Longest tap delay, samples.
+    max_delay: usize,
+    /// The last `max_delay` input samples followed by the current chunk (real, imaginary).
     x_re: Vec<f32>,
     x_im: Vec<f32>,
     /// Scratch: the chunk's output, real and imaginary parts.
     y_re: Vec<f32>,
     y_im: Vec<f32>,
+    /// Scratch: one tap's coarse points for the chunk.
+    points: Vec<Complex<f64>>,
     /// Scratch: one tap's gains over the chunk.
     g_re: Vec<f32>,
     g_im: Vec<f32>,
@@ -85,11 +87,12 @@ impl Tdl {
         let max_delay = taps.iter().map(|t| t.0).max().unwrap_or(0);
         let mut line = Self {
             taps: Vec::with_capacity(taps.len()),
-            history: vec![Cf32::new(0.0, 0.0); max_delay],
-            x_re: Vec::with_capacity(max_delay + CHUNK),
-            x_im: Vec::with_capacity(max_delay + CHUNK),
+            max_delay,
+            x_re: vec![0.0; max_delay],
+            x_im: vec![0.0; max_delay],
             y_re: Vec::with_capacity(CHUNK),
             y_im: Vec::with_capacity(CHUNK),
+            points: Vec::with_capacity(CHUNK),
             g_re: Vec::with_capacity(CHUNK),
             g_im: Vec::with_capacity(CHUNK),
             time: 0,
@@ -139,14 +142,18 @@ impl Tdl {
 
     fn process_chunk(&mut self, input: &[Cf32], output: &mut [Cf32]) {
         let n = input.len();
-        let max_delay = self.history.len();
+        let max_delay = self.max_delay;
         // Split real and imaginary parts (structure of arrays): the per-tap loops below then
         // vectorise.
-        self.x_re.clear();
-        self.x_im.clear();
-        for v in self.history.iter().chain(input) {
-            self.x_re.push(v.re);
-            self.x_im.push(v.im);
+        // x holds the last `max_delay` samples of earlier chunks, then this chunk.
+        self.x_re.resize(max_delay + n, 0.0);
+        self.x_im.resize(max_delay + n, 0.0);
+        let xs = self.x_re[max_delay..]
+            .iter_mut()
+            .zip(self.x_im[max_delay..].iter_mut());
+        for ((r, i), v) in xs.zip(input) {
+            *r = v.re;
+            *i = v.im;
         }
         self.y_re.clear();
         self.y_re.resize(n, 0.0);
@@ -155,80 +162,132 @@ impl Tdl {
         self.g_re.resize(n, 0.0);
         self.g_im.resize(n, 0.0);
         for (tap, upcoming) in self.taps.iter_mut().zip(self.upcoming.iter_mut()) {
-            // Pass 1: this chunk's gains (amplitude included), linear inside each step.
-            let a = tap.amplitude;
-            let mut i = 0;
-            while i < n {
-                let step = tap.fading.step();
-                let seg = (step - tap.pos).min(n - i);
-                let (d_re, d_im) = (tap.delta.re * a, tap.delta.im * a);
-                let s_re = (tap.base.re + tap.delta.re * tap.pos as f32) * a;
-                let s_im = (tap.base.im + tap.delta.im * tap.pos as f32) * a;
-                kernels::ramp(
-                    &mut self.g_re[i..i + seg],
-                    &mut self.g_im[i..i + seg],
-                    (s_re, s_im),
-                    (d_re, d_im),
-                );
-                tap.pos += seg;
-                i += seg;
-                if tap.pos == step {
-                    let first = *upcoming;
-                    let next = tap.fading.next_coarse();
-                    tap.load_step(first, next);
-                    *upcoming = next;
-                }
-            }
-            if let Variation::HeldPerBlock(block) = self.variation {
-                let block = block.max(1) as u64;
-                let gs = self.g_re.iter_mut().zip(self.g_im.iter_mut());
-                for (k, (gr, gi)) in gs.enumerate() {
-                    if (self.time + k as u64).is_multiple_of(block) {
-                        tap.held = Cf32::new(*gr, *gi);
-                    }
-                    *gr = tap.held.re;
-                    *gi = tap.held.im;
-                }
-            }
-            // Pass 2: y += g · x[n − d] over the whole chunk (vectorised).
+            // Pass 1: this chunk's gains (amplitude included), linear inside each step; the
+            // coarse points the chunk needs are computed first, in one batch.
+            let step = tap.fading.step();
+            let needed = (tap.pos + n) / step;
+            self.points.resize(needed, Complex::new(0.0, 0.0));
+            tap.fading.coarse_points(&mut self.points);
             let off = max_delay - tap.delay;
             let (x_re, x_im) = (&self.x_re[off..off + n], &self.x_im[off..off + n]);
-            kernels::mac(
-                &mut self.y_re,
-                &mut self.y_im,
-                &self.g_re,
-                &self.g_im,
-                x_re,
-                x_im,
-            );
+            match self.variation {
+                // Gains computed and applied in one pass (nothing stored).
+                Variation::Continuous => {
+                    kernels::fill_mac(
+                        &mut self.y_re,
+                        &mut self.y_im,
+                        x_re,
+                        x_im,
+                        tap,
+                        upcoming,
+                        &self.points,
+                    );
+                }
+                Variation::HeldPerBlock(block) => {
+                    kernels::fill(
+                        &mut self.g_re[..n],
+                        &mut self.g_im[..n],
+                        tap,
+                        upcoming,
+                        &self.points,
+                    );
+                    let block = block.max(1) as u64;
+                    let gs = self.g_re.iter_mut().zip(self.g_im.iter_mut());
+                    for (k, (gr, gi)) in gs.enumerate() {
+                        if (self.time + k as u64).is_multiple_of(block) {
+                            tap.held = Cf32::new(*gr, *gi);
+                        }
+                        *gr = tap.held.re;
+                        *gi = tap.held.im;
+                    }
+                    kernels::mac(
+                        &mut self.y_re,
+                        &mut self.y_im,
+                        &self.g_re,
+                        &self.g_im,
+                        x_re,
+                        x_im,
+                    );
+                }
+            }
         }
         for ((o, r), im) in output.iter_mut().zip(&self.y_re).zip(&self.y_im) {
             *o = Cf32::new(*r, *im);
         }
         let keep = self.x_re.len() - max_delay;
-        for (h, (r, im)) in self
-            .history
-            .iter_mut()
-            .zip(self.x_re[keep..].iter().zip(&self.x_im[keep..]))
-        {
-            *h = Cf32::new(*r, *im);
-        }
+        self.x_re.copy_within(keep.., 0);
+        self.x_im.copy_within(keep.., 0);
         self.time += n as u64;
     }
 }
 
-/// The two inner loops, compiled twice: for the baseline target and, chosen at run time, with
-/// AVX2 enabled (wider vectors, the same IEEE operations in the same order — no FMA — so both
-/// give the same bits).
+/// The gain fill and the multiply-accumulate loop, compiled twice: for the baseline target and,
+/// chosen at run time, with AVX2 enabled (wider vectors, the same IEEE operations in the same
+/// order — no FMA — so both give the same bits).
 mod kernels {
+    use super::{Cf32, Complex, Tap};
+
     macro_rules! define {
-        ($ramp:ident, $mac:ident $(, $feature:literal)?) => {
-            /// `g[j] = start + step·j` (complex, split parts).
+        ($fill:ident, $fill_mac:ident, $mac:ident $(, $feature:literal)?) => {
+            /// The tap's gains over one chunk: linear between coarse points, the amplitude
+            /// folded in; consumes `points` (the coarse points the chunk reaches).
             $(#[target_feature(enable = $feature)])?
-            pub(super) fn $ramp(g_re: &mut [f32], g_im: &mut [f32], start: (f32, f32), step: (f32, f32)) {
-                for (j, (gr, gi)) in g_re.iter_mut().zip(g_im.iter_mut()).enumerate() {
-                    *gr = start.0 + step.0 * j as f32;
-                    *gi = start.1 + step.1 * j as f32;
+            pub(super) fn $fill(g_re: &mut [f32], g_im: &mut [f32], tap: &mut Tap, upcoming: &mut Complex<f64>, points: &[Complex<f64>]) {
+                let n = g_re.len().min(g_im.len());
+                let step = tap.fading.step();
+                let a = tap.amplitude;
+                let mut points = points.iter();
+                let mut i = 0;
+                while i < n {
+                    let seg = (step - tap.pos).min(n - i);
+                    let (d_re, d_im) = (tap.delta.re * a, tap.delta.im * a);
+                    let s_re = (tap.base.re + tap.delta.re * tap.pos as f32) * a;
+                    let s_im = (tap.base.im + tap.delta.im * tap.pos as f32) * a;
+                    let gs = g_re[i..i + seg].iter_mut().zip(g_im[i..i + seg].iter_mut());
+                    for (j, (gr, gi)) in gs.enumerate() {
+                        *gr = s_re + d_re * j as f32;
+                        *gi = s_im + d_im * j as f32;
+                    }
+                    tap.pos += seg;
+                    i += seg;
+                    if tap.pos == step {
+                        let first = *upcoming;
+                        let next = points.next().copied().unwrap_or(first);
+                        tap.load_step(first, next);
+                        *upcoming = next;
+                    }
+                }
+            }
+            /// [`fill`](self::fill) and [`mac`](self::mac) fused: each gain is computed as
+            /// `fill` computes it and applied at once.
+            $(#[target_feature(enable = $feature)])?
+            pub(super) fn $fill_mac(y_re: &mut [f32], y_im: &mut [f32], x_re: &[f32], x_im: &[f32], tap: &mut Tap, upcoming: &mut Complex<f64>, points: &[Complex<f64>]) {
+                let n = y_re.len().min(y_im.len()).min(x_re.len()).min(x_im.len());
+                let step = tap.fading.step();
+                let a = tap.amplitude;
+                let mut points = points.iter();
+                let mut i = 0;
+                while i < n {
+                    let seg = (step - tap.pos).min(n - i);
+                    let (d_re, d_im) = (tap.delta.re * a, tap.delta.im * a);
+                    let s_re = (tap.base.re + tap.delta.re * tap.pos as f32) * a;
+                    let s_im = (tap.base.im + tap.delta.im * tap.pos as f32) * a;
+                    let ys = y_re[i..i + seg].iter_mut().zip(y_im[i..i + seg].iter_mut());
+                    let xs = x_re[i..i + seg].iter().zip(&x_im[i..i + seg]);
+                    for (j, ((yr, yi), (xr, xi))) in ys.zip(xs).enumerate() {
+                        let gr = s_re + d_re * j as f32;
+                        let gi = s_im + d_im * j as f32;
+                        *yr += gr * xr - gi * xi;
+                        *yi += gr * xi + gi * xr;
+                    }
+                    tap.pos += seg;
+                    i += seg;
+                    if tap.pos == step {
+                        let first = *upcoming;
+                        let next = points.next().copied().unwrap_or(first);
+                        tap.load_step(first, next);
+                        *upcoming = next;
+                    }
                 }
             }
             /// `y += g·x` (complex, split parts).
@@ -243,24 +302,41 @@ mod kernels {
             }
         };
     }
-    define!(ramp_base, mac_base);
+    define!(fill_base, fill_mac_base, mac_base);
     #[cfg(target_arch = "x86_64")]
-    define!(ramp_avx2, mac_avx2, "avx2");
+    define!(fill_avx2, fill_mac_avx2, mac_avx2, "avx2");
 
-    #[cfg(target_arch = "x86_64")]
-    fn has_avx2() -> bool {
-        use std::sync::OnceLock;
-        static AVX2: OnceLock<bool> = OnceLock::new();
-        *AVX2.get_or_init(|| std::arch::is_x86_feature_detected!("avx2"))
+    pub(super) fn fill(
+        g_re: &mut [f32],
+        g_im: &mut [f32],
+        tap: &mut Tap,
+        upcoming: &mut Complex<f64>,
+        points: &[Complex<f64>],
+    ) {
+        #[cfg(target_arch = "x86_64")]
+        if crate::simd::has_avx2() {
+            // SAFETY: the CPU supports AVX2 (checked at run time).
+            return unsafe { fill_avx2(g_re, g_im, tap, upcoming, points) };
+        }
+        fill_base(g_re, g_im, tap, upcoming, points)
     }
 
-    pub(super) fn ramp(g_re: &mut [f32], g_im: &mut [f32], start: (f32, f32), step: (f32, f32)) {
+    #[allow(clippy::too_many_arguments)]
+    pub(super) fn fill_mac(
+        y_re: &mut [f32],
+        y_im: &mut [f32],
+        x_re: &[f32],
+        x_im: &[f32],
+        tap: &mut Tap,
+        upcoming: &mut Complex<f64>,
+        points: &[Complex<f64>],
+    ) {
         #[cfg(target_arch = "x86_64")]
-        if has_avx2() {
+        if crate::simd::has_avx2() {
             // SAFETY: the CPU supports AVX2 (checked at run time).
-            return unsafe { ramp_avx2(g_re, g_im, start, step) };
+            return unsafe { fill_mac_avx2(y_re, y_im, x_re, x_im, tap, upcoming, points) };
         }
-        ramp_base(g_re, g_im, start, step)
+        fill_mac_base(y_re, y_im, x_re, x_im, tap, upcoming, points)
     }
 
     pub(super) fn mac(
@@ -272,10 +348,13 @@ mod kernels {
         x_im: &[f32],
     ) {
         #[cfg(target_arch = "x86_64")]
-        if has_avx2() {
+        if crate::simd::has_avx2() {
             // SAFETY: the CPU supports AVX2 (checked at run time).
             return unsafe { mac_avx2(y_re, y_im, g_re, g_im, x_re, x_im) };
         }
         mac_base(y_re, y_im, g_re, g_im, x_re, x_im)
     }
+
+    #[allow(dead_code)]
+    fn _uses(_: Cf32) {}
 }
