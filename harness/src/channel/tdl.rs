@@ -21,7 +21,7 @@ pub enum Variation {
 }
 
 /// Samples per internal processing chunk (keeps the gain scratch in cache).
-const CHUNK: usize = 1024;
+const CHUNK: usize = 4096;
 
 #[derive(Clone, Debug)]
 struct Tap {
@@ -148,13 +148,11 @@ impl Tdl {
         // x holds the last `max_delay` samples of earlier chunks, then this chunk.
         self.x_re.resize(max_delay + n, 0.0);
         self.x_im.resize(max_delay + n, 0.0);
-        let xs = self.x_re[max_delay..]
-            .iter_mut()
-            .zip(self.x_im[max_delay..].iter_mut());
-        for ((r, i), v) in xs.zip(input) {
-            *r = v.re;
-            *i = v.im;
-        }
+        kernels::split(
+            &mut self.x_re[max_delay..],
+            &mut self.x_im[max_delay..],
+            input,
+        );
         self.y_re.clear();
         self.y_re.resize(n, 0.0);
         self.y_im.clear();
@@ -211,9 +209,7 @@ impl Tdl {
                 }
             }
         }
-        for ((o, r), im) in output.iter_mut().zip(&self.y_re).zip(&self.y_im) {
-            *o = Cf32::new(*r, *im);
-        }
+        kernels::join(output, &self.y_re, &self.y_im);
         let keep = self.x_re.len() - max_delay;
         self.x_re.copy_within(keep.., 0);
         self.x_im.copy_within(keep.., 0);
@@ -228,7 +224,7 @@ mod kernels {
     use super::{Cf32, Complex, Tap};
 
     macro_rules! define {
-        ($fill:ident, $fill_mac:ident, $mac:ident $(, $feature:literal)?) => {
+        ($fill:ident, $fill_mac:ident, $mac:ident, $split:ident, $join:ident $(, $feature:literal)?) => {
             /// The tap's gains over one chunk: linear between coarse points, the amplitude
             /// folded in; consumes `points` (the coarse points the chunk reaches).
             $(#[target_feature(enable = $feature)])?
@@ -290,6 +286,21 @@ mod kernels {
                     }
                 }
             }
+            /// Complex samples into real and imaginary arrays.
+            $(#[target_feature(enable = $feature)])?
+            pub(super) fn $split(re: &mut [f32], im: &mut [f32], x: &[Cf32]) {
+                for ((r, i), v) in re.iter_mut().zip(im.iter_mut()).zip(x) {
+                    *r = v.re;
+                    *i = v.im;
+                }
+            }
+            /// Real and imaginary arrays into complex samples.
+            $(#[target_feature(enable = $feature)])?
+            pub(super) fn $join(x: &mut [Cf32], re: &[f32], im: &[f32]) {
+                for ((v, r), i) in x.iter_mut().zip(re).zip(im) {
+                    *v = Cf32::new(*r, *i);
+                }
+            }
             /// `y += g·x` (complex, split parts).
             $(#[target_feature(enable = $feature)])?
             pub(super) fn $mac(y_re: &mut [f32], y_im: &mut [f32], g_re: &[f32], g_im: &[f32], x_re: &[f32], x_im: &[f32]) {
@@ -302,9 +313,16 @@ mod kernels {
             }
         };
     }
-    define!(fill_base, fill_mac_base, mac_base);
+    define!(fill_base, fill_mac_base, mac_base, split_base, join_base);
     #[cfg(target_arch = "x86_64")]
-    define!(fill_avx2, fill_mac_avx2, mac_avx2, "avx2");
+    define!(
+        fill_avx2,
+        fill_mac_avx2,
+        mac_avx2,
+        split_avx2,
+        join_avx2,
+        "avx2"
+    );
 
     pub(super) fn fill(
         g_re: &mut [f32],
@@ -339,6 +357,24 @@ mod kernels {
         fill_mac_base(y_re, y_im, x_re, x_im, tap, upcoming, points)
     }
 
+    pub(super) fn split(re: &mut [f32], im: &mut [f32], x: &[Cf32]) {
+        #[cfg(target_arch = "x86_64")]
+        if crate::simd::has_avx2() {
+            // SAFETY: the CPU supports AVX2 (checked at run time).
+            return unsafe { split_avx2(re, im, x) };
+        }
+        split_base(re, im, x)
+    }
+
+    pub(super) fn join(x: &mut [Cf32], re: &[f32], im: &[f32]) {
+        #[cfg(target_arch = "x86_64")]
+        if crate::simd::has_avx2() {
+            // SAFETY: the CPU supports AVX2 (checked at run time).
+            return unsafe { join_avx2(x, re, im) };
+        }
+        join_base(x, re, im)
+    }
+
     pub(super) fn mac(
         y_re: &mut [f32],
         y_im: &mut [f32],
@@ -354,7 +390,4 @@ mod kernels {
         }
         mac_base(y_re, y_im, g_re, g_im, x_re, x_im)
     }
-
-    #[allow(dead_code)]
-    fn _uses(_: Cf32) {}
 }
