@@ -22,9 +22,10 @@
 //! exact phase every 256 steps) on a coarse grid of one point every `D` samples, and linearly
 //! interpolated in between. For a sinusoid advancing `θ = 2π f D Ts` per step, linear
 //! interpolation leaves a mean-square error of `θ⁴/120` (leading term; derivation in
-//! [`interpolation_mse_bound`]). [`step_for`] picks the largest power-of-two `D ≤ 64` that keeps
-//! this bound, at the maximum Doppler, 35 dB below the Doppler ICI of an `N`-sample window
-//! (the (2π fd N Ts)²/24 approximation of REFERENCES item 1).
+//! [`interpolation_mse_bound`]), `3θ⁴/(8·120)` averaged over the Jakes spectrum. [`step_for`]
+//! picks the largest `D ≤ 64` that keeps this error 35 dB below the Doppler ICI of an
+//! `N`-sample window (the (2π fd N Ts)²/24 approximation of REFERENCES item 1);
+//! [`step_for_any_spectrum`] uses the spectrum-free bound (Rician taps).
 
 use std::f64::consts::PI;
 
@@ -86,20 +87,37 @@ pub fn interpolation_mse_bound(doppler_norm: f64, step: usize) -> f64 {
     theta.powi(4) / 120.0
 }
 
-/// The interpolation step rule: the largest power of two `D ≤ MAX_STEP` with
-/// [`interpolation_mse_bound`] at least [`INTERPOLATION_MARGIN_DB`] below the Doppler ICI
-/// `(2π fd N Ts)²/24` of a window of `window_samples` samples. `doppler_norm` is fd·Ts.
+/// Mean-square error of linear interpolation for the classical (Jakes) spectrum: the bound of
+/// [`interpolation_mse_bound`] times the spectrum's mean of cos⁴ over the arrival angle, 3/8
+/// (leading term).
+pub fn jakes_interpolation_mse(doppler_norm: f64, step: usize) -> f64 {
+    interpolation_mse_bound(doppler_norm, step) * 3.0 / 8.0
+}
+
+/// The interpolation step rule for Rayleigh (Jakes-spectrum) taps: the largest step
+/// `D ≤ MAX_STEP` whose [`jakes_interpolation_mse`] is at least [`INTERPOLATION_MARGIN_DB`]
+/// below the Doppler ICI `(2π fd N Ts)²/24` of a window of `window_samples` samples.
+/// `doppler_norm` is fd·Ts.
 pub fn step_for(doppler_norm: f64, window_samples: usize) -> usize {
+    largest_step(doppler_norm, window_samples, jakes_interpolation_mse)
+}
+
+/// The same rule with the spectrum-free bound [`interpolation_mse_bound`]: for taps whose
+/// spectrum is not the classical one (a Rician line-of-sight component).
+pub fn step_for_any_spectrum(doppler_norm: f64, window_samples: usize) -> usize {
+    largest_step(doppler_norm, window_samples, interpolation_mse_bound)
+}
+
+fn largest_step(doppler_norm: f64, window_samples: usize, mse: fn(f64, usize) -> f64) -> usize {
     if doppler_norm <= 0.0 || window_samples == 0 {
         return MAX_STEP;
     }
     let ici = (2.0 * PI * doppler_norm * window_samples as f64).powi(2) / 24.0;
     let allowed = ici * 10f64.powf(-INTERPOLATION_MARGIN_DB / 10.0);
-    let mut step = MAX_STEP;
-    while step > 1 && interpolation_mse_bound(doppler_norm, step) > allowed {
-        step /= 2;
-    }
-    step
+    (1..=MAX_STEP)
+        .rev()
+        .find(|&d| mse(doppler_norm, d) <= allowed)
+        .unwrap_or(1)
 }
 
 /// One fading tap: its random parameters and the coarse-grid oscillators.
@@ -349,18 +367,28 @@ mod tests {
 
     #[test]
     fn step_rule_keeps_its_margin() {
-        // The rule's own guarantee, recomputed from its definition for a grid of cases.
+        // The rules' own guarantee, recomputed from their definitions for a grid of cases;
+        // the largest step is chosen (the next one up would break the margin).
         for &n in &[64usize, 256, 1024] {
             for &fdt in &[0.001, 0.01, 0.05, 0.1, 0.2, 0.5] {
                 let fd_norm = fdt / n as f64;
-                let d = step_for(fd_norm, n);
-                assert!(d.is_power_of_two() && d <= MAX_STEP);
-                let ici = (2.0 * PI * fdt).powi(2) / 24.0;
-                let bound = interpolation_mse_bound(fd_norm, d);
-                assert!(
-                    d == 1 || bound <= ici * 10f64.powf(-3.5),
-                    "n={n} fdT={fdt} D={d}"
-                );
+                let allowed = (2.0 * PI * fdt).powi(2) / 24.0 * 10f64.powf(-3.5);
+                let rules: [(fn(f64, usize) -> usize, fn(f64, usize) -> f64); 2] = [
+                    (step_for, jakes_interpolation_mse),
+                    (step_for_any_spectrum, interpolation_mse_bound),
+                ];
+                for (rule, mse) in rules {
+                    let d = rule(fd_norm, n);
+                    assert!((1..=MAX_STEP).contains(&d));
+                    assert!(
+                        d == 1 || mse(fd_norm, d) <= allowed,
+                        "n={n} fdT={fdt} D={d}"
+                    );
+                    assert!(
+                        d == MAX_STEP || mse(fd_norm, d + 1) > allowed,
+                        "n={n} fdT={fdt} D={d} not largest"
+                    );
+                }
             }
         }
     }

@@ -39,7 +39,6 @@ struct Tap {
 
 impl Tap {
     fn load_step(&mut self, first: Complex<f64>, next: Complex<f64>) {
-        // The step is a power of two: multiplying by its reciprocal is exact.
         let inv = 1.0 / self.fading.step() as f64;
         self.base = Complex::new(first.re as f32, first.im as f32);
         self.delta = Complex::new(
