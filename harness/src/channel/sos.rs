@@ -373,7 +373,8 @@ mod tests {
             for &fdt in &[0.001, 0.01, 0.05, 0.1, 0.2, 0.5] {
                 let fd_norm = fdt / n as f64;
                 let allowed = (2.0 * PI * fdt).powi(2) / 24.0 * 10f64.powf(-3.5);
-                let rules: [(fn(f64, usize) -> usize, fn(f64, usize) -> f64); 2] = [
+                type Rule = (fn(f64, usize) -> usize, fn(f64, usize) -> f64);
+                let rules: [Rule; 2] = [
                     (step_for, jakes_interpolation_mse),
                     (step_for_any_spectrum, interpolation_mse_bound),
                 ];
