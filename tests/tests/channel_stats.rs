@@ -166,3 +166,28 @@ fn same_seed_same_output_different_seed_independent() {
     let rho = cross / (pa * pc).sqrt();
     assert!(rho.abs() < 0.28, "correlation {rho}");
 }
+
+#[test]
+fn rician_tap_has_its_k_factor() {
+    // Rician K = 3 with the line of sight arriving broadside (its Doppler fd·cos(π/2) = 0, so
+    // the specular term is constant): over a long record the mean of h is that term, of power
+    // K/(K+1) = 0.75, and E|h|² = 1 (definition of the Rician K factor, common practice).
+    // Record 1000/fd: the scattered part averages to about 1/sqrt(2·1000) ≈ 0.02 in amplitude.
+    let params = FadingParams {
+        doppler_hz: 100.0,
+        sample_rate_hz: 10_000.0,
+        sinusoids: 16,
+        rician_k: 3.0,
+        los_angle_rad: std::f64::consts::FRAC_PI_2,
+        step: 8,
+    };
+    let h = gains(&params, 3, 100_000);
+    let mean = h.iter().sum::<Cf32>() / h.len() as f32;
+    let power = h.iter().map(|g| f64::from(g.norm_sqr())).sum::<f64>() / h.len() as f64;
+    assert!(
+        (f64::from(mean.norm_sqr()) - 0.75).abs() < 0.05,
+        "specular power {}",
+        mean.norm_sqr()
+    );
+    assert!((power - 1.0).abs() < 0.1, "total power {power}");
+}
