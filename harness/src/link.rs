@@ -87,53 +87,12 @@ pub fn awgn_errors(
     rng: &mut HarnessRng,
     stop: StopRule,
 ) -> Result<ErrorCount> {
+    let mut unit = |_: &mut HarnessRng| Cf32::new(1.0, 0.0);
     with_fft_len!(
         numerology.fft_len(),
-        awgn_errors_n(numerology, modulation, es_n0_db, rng, stop)
+        count_errors(numerology, modulation, es_n0_db, rng, stop, &mut unit)
     )
-}
-
-fn awgn_errors_n<const N: usize>(
-    numerology: &Numerology,
-    modulation: Modulation,
-    es_n0_db: f64,
-    rng: &mut HarnessRng,
-    stop: StopRule,
-) -> Result<ErrorCount> {
-    let mut tx = Transmitter::new(*numerology, MicroFft::<N>::new())?;
-    let mut front = Front::new(numerology, MicroFft::<N>::new())?;
-    let n0 = n0_for_es_n0_db(es_n0_db);
-    let weight = (1.0 / n0) as f32;
-    let k = modulation.bits_per_symbol();
-    let mut samples = vec![Cf32::new(0.0, 0.0); numerology.symbol_len()];
-    let mut bins: Box<[Cf32; N]> = Box::new([Cf32::new(0.0, 0.0); N]);
-    let mut bits = Vec::with_capacity(numerology.max_data_len() * k);
-    let mut llrs = [0.0f32; 8];
-    let mut count = ErrorCount {
-        bits: 0,
-        errors: 0,
-        symbols: 0,
-    };
-    let mut symbol: u32 = 0;
-    while count.errors < stop.min_errors && count.bits < stop.max_bits {
-        bits.clear();
-        bits.extend(
-            (0..tx.bits_per_ofdm_symbol(modulation, symbol)).map(|_| rng.random::<u8>() & 1),
-        );
-        tx.modulate(modulation, &bits, symbol, &mut samples)?;
-        add_awgn(rng, &mut samples, n0);
-        front.demodulate(&samples, &mut bins)?;
-        for (fft_index, sent) in numerology.data_bins(symbol).zip(bits.chunks_exact(k)) {
-            llr_max_log(modulation, bins[fft_index], weight, &mut llrs)?;
-            for (l, b) in llrs.iter().zip(sent) {
-                count.errors += u64::from(u8::from(*l < 0.0) != *b);
-            }
-        }
-        count.bits += bits.len() as u64;
-        count.symbols += 1;
-        symbol = symbol.wrapping_add(1);
-    }
-    Ok(count)
+    .map(|(count, _)| count)
 }
 
 /// Bit errors of `modulation` over flat Rayleigh block fading with ideal channel knowledge:
@@ -152,25 +111,38 @@ pub fn flat_rayleigh_errors(
     rng: &mut HarnessRng,
     stop: StopRule,
 ) -> Result<(ErrorCount, f64)> {
+    use crate::channel::sos::{FadingParams, SosFading};
+    let fading = FadingParams::rayleigh(
+        100.0,
+        f64::from(numerology.sample_rate_hz()),
+        numerology.fft_len(),
+    );
+    let mut draw = |rng: &mut HarnessRng| {
+        let h = SosFading::new(&fading, rng).gain_exact(rng.random_range(0..1_000_000));
+        Cf32::new(h.re as f32, h.im as f32)
+    };
     with_fft_len!(
         numerology.fft_len(),
-        flat_rayleigh_errors_n(numerology, modulation, es_n0_db, rng, stop)
+        count_errors(numerology, modulation, es_n0_db, rng, stop, &mut draw)
     )
 }
 
-fn flat_rayleigh_errors_n<const N: usize>(
+/// The link loop shared by the error counters: per OFDM symbol, random bits → transmitter →
+/// the flat gain `gain(rng)` → AWGN → receiver front → division by the gain (ideal channel
+/// knowledge) → max-log LLRs weighted by `|h|²/N0` → sign decisions. Returns the count and the
+/// standard deviation of the per-symbol BER.
+fn count_errors<const N: usize>(
     numerology: &Numerology,
     modulation: Modulation,
     es_n0_db: f64,
     rng: &mut HarnessRng,
     stop: StopRule,
+    gain: &mut dyn FnMut(&mut HarnessRng) -> Cf32,
 ) -> Result<(ErrorCount, f64)> {
-    use crate::channel::sos::{FadingParams, SosFading};
     let mut tx = Transmitter::new(*numerology, MicroFft::<N>::new())?;
     let mut front = Front::new(numerology, MicroFft::<N>::new())?;
     let n0 = n0_for_es_n0_db(es_n0_db);
     let k = modulation.bits_per_symbol();
-    let fading = FadingParams::rayleigh(100.0, f64::from(numerology.sample_rate_hz()), N);
     let mut samples = vec![Cf32::new(0.0, 0.0); numerology.symbol_len()];
     let mut bins: Box<[Cf32; N]> = Box::new([Cf32::new(0.0, 0.0); N]);
     let mut bits = Vec::with_capacity(numerology.max_data_len() * k);
@@ -188,8 +160,7 @@ fn flat_rayleigh_errors_n<const N: usize>(
             (0..tx.bits_per_ofdm_symbol(modulation, symbol)).map(|_| rng.random::<u8>() & 1),
         );
         tx.modulate(modulation, &bits, symbol, &mut samples)?;
-        let h = SosFading::new(&fading, rng).gain_exact(rng.random_range(0..1_000_000));
-        let h = Cf32::new(h.re as f32, h.im as f32);
+        let h = gain(rng);
         samples.iter_mut().for_each(|s| *s *= h);
         add_awgn(rng, &mut samples, n0);
         front.demodulate(&samples, &mut bins)?;
@@ -201,7 +172,7 @@ fn flat_rayleigh_errors_n<const N: usize>(
                 errors += u64::from(u8::from(*l < 0.0) != *b);
             }
         }
-        let ber = errors as f64 / bits.len() as f64;
+        let ber = errors as f64 / bits.len().max(1) as f64;
         sum += ber;
         sum_sq += ber * ber;
         count.errors += errors;

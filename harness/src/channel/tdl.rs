@@ -222,6 +222,40 @@ impl Tdl {
 mod kernels {
     use super::{Cf32, Complex, Tap};
 
+    /// Walks a tap through `n` samples step by step: for each run of samples inside one
+    /// interpolation step, calls `run(first sample, length, gain at its start, gain increment)`
+    /// (amplitude folded in), then moves to the next coarse point from `points`.
+    #[inline(always)]
+    fn walk_steps(
+        tap: &mut Tap,
+        upcoming: &mut Complex<f64>,
+        points: &[Complex<f64>],
+        n: usize,
+        mut run: impl FnMut(usize, usize, (f32, f32), (f32, f32)),
+    ) {
+        let step = tap.fading.step();
+        let a = tap.amplitude;
+        let mut points = points.iter();
+        let mut i = 0;
+        while i < n {
+            let seg = (step - tap.pos).min(n - i);
+            let d = (tap.delta.re * a, tap.delta.im * a);
+            let start = (
+                (tap.base.re + tap.delta.re * tap.pos as f32) * a,
+                (tap.base.im + tap.delta.im * tap.pos as f32) * a,
+            );
+            run(i, seg, start, d);
+            tap.pos += seg;
+            i += seg;
+            if tap.pos == step {
+                let first = *upcoming;
+                let next = points.next().copied().unwrap_or(first);
+                tap.load_step(first, next);
+                *upcoming = next;
+            }
+        }
+    }
+
     macro_rules! define {
         ($fill:ident, $fill_mac:ident, $mac:ident, $split:ident, $join:ident $(, $feature:literal)?) => {
             /// The tap's gains over one chunk: linear between coarse points, the amplitude
@@ -229,44 +263,20 @@ mod kernels {
             $(#[target_feature(enable = $feature)])?
             pub(super) fn $fill(g_re: &mut [f32], g_im: &mut [f32], tap: &mut Tap, upcoming: &mut Complex<f64>, points: &[Complex<f64>]) {
                 let n = g_re.len().min(g_im.len());
-                let step = tap.fading.step();
-                let a = tap.amplitude;
-                let mut points = points.iter();
-                let mut i = 0;
-                while i < n {
-                    let seg = (step - tap.pos).min(n - i);
-                    let (d_re, d_im) = (tap.delta.re * a, tap.delta.im * a);
-                    let s_re = (tap.base.re + tap.delta.re * tap.pos as f32) * a;
-                    let s_im = (tap.base.im + tap.delta.im * tap.pos as f32) * a;
+                walk_steps(tap, upcoming, points, n, |i, seg, (s_re, s_im), (d_re, d_im)| {
                     let gs = g_re[i..i + seg].iter_mut().zip(g_im[i..i + seg].iter_mut());
                     for (j, (gr, gi)) in gs.enumerate() {
                         *gr = s_re + d_re * j as f32;
                         *gi = s_im + d_im * j as f32;
                     }
-                    tap.pos += seg;
-                    i += seg;
-                    if tap.pos == step {
-                        let first = *upcoming;
-                        let next = points.next().copied().unwrap_or(first);
-                        tap.load_step(first, next);
-                        *upcoming = next;
-                    }
-                }
+                });
             }
             /// [`fill`](self::fill) and [`mac`](self::mac) fused: each gain is computed as
             /// `fill` computes it and applied at once.
             $(#[target_feature(enable = $feature)])?
             pub(super) fn $fill_mac(y_re: &mut [f32], y_im: &mut [f32], x_re: &[f32], x_im: &[f32], tap: &mut Tap, upcoming: &mut Complex<f64>, points: &[Complex<f64>]) {
                 let n = y_re.len().min(y_im.len()).min(x_re.len()).min(x_im.len());
-                let step = tap.fading.step();
-                let a = tap.amplitude;
-                let mut points = points.iter();
-                let mut i = 0;
-                while i < n {
-                    let seg = (step - tap.pos).min(n - i);
-                    let (d_re, d_im) = (tap.delta.re * a, tap.delta.im * a);
-                    let s_re = (tap.base.re + tap.delta.re * tap.pos as f32) * a;
-                    let s_im = (tap.base.im + tap.delta.im * tap.pos as f32) * a;
+                walk_steps(tap, upcoming, points, n, |i, seg, (s_re, s_im), (d_re, d_im)| {
                     let ys = y_re[i..i + seg].iter_mut().zip(y_im[i..i + seg].iter_mut());
                     let xs = x_re[i..i + seg].iter().zip(&x_im[i..i + seg]);
                     for (j, ((yr, yi), (xr, xi))) in ys.zip(xs).enumerate() {
@@ -275,15 +285,7 @@ mod kernels {
                         *yr += gr * xr - gi * xi;
                         *yi += gr * xi + gi * xr;
                     }
-                    tap.pos += seg;
-                    i += seg;
-                    if tap.pos == step {
-                        let first = *upcoming;
-                        let next = points.next().copied().unwrap_or(first);
-                        tap.load_step(first, next);
-                        *upcoming = next;
-                    }
-                }
+                });
             }
             /// Complex samples into real and imaginary arrays.
             $(#[target_feature(enable = $feature)])?
