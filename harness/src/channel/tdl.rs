@@ -266,8 +266,8 @@ mod kernels {
                 walk_steps(tap, upcoming, points, n, |i, seg, (s_re, s_im), (d_re, d_im)| {
                     let gs = g_re[i..i + seg].iter_mut().zip(g_im[i..i + seg].iter_mut());
                     for (j, (gr, gi)) in gs.enumerate() {
-                        *gr = s_re + d_re * j as f32;
-                        *gi = s_im + d_im * j as f32;
+                        *gr = s_re + d_re * j as i32 as f32;
+                        *gi = s_im + d_im * j as i32 as f32;
                     }
                 });
             }
@@ -280,8 +280,8 @@ mod kernels {
                     let ys = y_re[i..i + seg].iter_mut().zip(y_im[i..i + seg].iter_mut());
                     let xs = x_re[i..i + seg].iter().zip(&x_im[i..i + seg]);
                     for (j, ((yr, yi), (xr, xi))) in ys.zip(xs).enumerate() {
-                        let gr = s_re + d_re * j as f32;
-                        let gi = s_im + d_im * j as f32;
+                        let gr = s_re + d_re * j as i32 as f32;
+                        let gi = s_im + d_im * j as i32 as f32;
                         *yr += gr * xr - gi * xi;
                         *yi += gr * xi + gi * xr;
                     }
