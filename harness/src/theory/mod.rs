@@ -14,3 +14,4 @@ pub mod ber;
 pub mod fading;
 pub mod freq_corr;
 pub mod ici;
+pub mod isi;
