@@ -15,3 +15,4 @@ pub mod fading;
 pub mod freq_corr;
 pub mod ici;
 pub mod isi;
+pub mod phase_noise;
