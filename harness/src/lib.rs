@@ -4,6 +4,7 @@
 //! `main.rs` is thin: every subcommand is a library function here that tests call directly.
 
 pub mod channel;
+pub mod characterise;
 pub mod evaluate;
 pub mod impair;
 pub mod link;

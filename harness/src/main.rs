@@ -21,6 +21,15 @@ struct Cli {
 enum Command {
     /// Run a scenario (the built-in default when no file is given) and compare with theory.
     Evaluate(EvaluateArgs),
+    /// Characterise a scenario's channel (the built-in default when no file is given):
+    /// Doppler, coherence, delay spread against the CP, predicted ICI and ISI.
+    Channel {
+        /// Scenario file (TOML).
+        file: Option<PathBuf>,
+        /// Print JSON instead of text.
+        #[arg(long)]
+        json: bool,
+    },
     /// Print a scenario as TOML (the built-in default when no file is given): a starting point
     /// for your own.
     Scenario {
@@ -72,6 +81,16 @@ fn run(cli: Cli) -> Result<ExitCode> {
                 eprintln!("error: a measured BER disagrees with theory beyond ±4σ");
                 ExitCode::from(2)
             })
+        }
+        Command::Channel { file, json } => {
+            let (scenario, _, _) = load(file.as_ref())?;
+            let summary = flatbin_harness::characterise::characterise(&scenario)?;
+            if json {
+                println!("{}", serde_json::to_string_pretty(&summary)?);
+            } else {
+                print!("{}", flatbin_harness::characterise::render_text(&summary));
+            }
+            Ok(ExitCode::SUCCESS)
         }
         Command::Scenario { file } => {
             let (scenario, _, _) = load(file.as_ref())?;
