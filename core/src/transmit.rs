@@ -87,13 +87,13 @@ impl<F: OfdmFft<N, Sample = Cf32>, const N: usize> Transmitter<F, N> {
     }
 }
 
-/// Grid mapping shared by [`Transmitter::map_grid`] and [`Transmitter::modulate`].
-fn fill_grid(
+/// Checks a symbol's bits for both transmitters: exactly the data bins' worth for
+/// `modulation`, each 0 or 1.
+pub(crate) fn check_bits(
     numerology: &Numerology,
     modulation: Modulation,
     bits: &[u8],
     symbol: u32,
-    grid: &mut [Cf32],
 ) -> Result<(), ProcessError> {
     let expected = numerology.data_len(symbol) * modulation.bits_per_symbol();
     if bits.len() != expected {
@@ -102,9 +102,21 @@ fn fill_grid(
             actual: bits.len(),
         });
     }
-    if let Some(index) = bits.iter().position(|&b| b > 1) {
-        return Err(ProcessError::InvalidBit { index });
+    match bits.iter().position(|&b| b > 1) {
+        Some(index) => Err(ProcessError::InvalidBit { index }),
+        None => Ok(()),
     }
+}
+
+/// Grid mapping shared by [`Transmitter::map_grid`] and [`Transmitter::modulate`].
+fn fill_grid(
+    numerology: &Numerology,
+    modulation: Modulation,
+    bits: &[u8],
+    symbol: u32,
+    grid: &mut [Cf32],
+) -> Result<(), ProcessError> {
+    check_bits(numerology, modulation, bits, symbol)?;
     grid.fill(Cf32::new(0.0, 0.0));
     let amplitude = numerology.pilot_amplitude();
     let mut prbs = Prbs15::for_symbol(numerology.params().pilots.seed, symbol);

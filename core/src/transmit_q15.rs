@@ -130,16 +130,7 @@ impl<const N: usize> TransmitterQ15<N> {
                 actual: out.len(),
             });
         }
-        let expected = self.bits_per_ofdm_symbol(modulation, symbol);
-        if bits.len() != expected {
-            return Err(ProcessError::BufferLength {
-                expected,
-                actual: bits.len(),
-            });
-        }
-        if let Some(index) = bits.iter().position(|&b| b > 1) {
-            return Err(ProcessError::InvalidBit { index });
-        }
+        crate::transmit::check_bits(&self.numerology, modulation, bits, symbol)?;
         let levels = if Q15Fft::<N>::LOG2_N % 2 == 1 {
             LEVELS_ODD.table(modulation)
         } else {

@@ -324,16 +324,7 @@ mod tests {
     //! & Salehi and Simon & Alouini citations as from memory (formulas verified numerically).
     use super::*;
 
-    /// Table precision: 6 significant digits.
-    const TABLE_REL: f64 = 1e-5;
-
-    fn assert_rel(got: f64, want: f64, rel: f64, what: &str) {
-        let err = (got - want).abs() / want.abs();
-        assert!(
-            err <= rel,
-            "{what}: got {got:e}, want {want:e}, relative error {err:e} > {rel:e}"
-        );
-    }
+    use super::super::table::{assert_rel, TABLE_REL};
 
     /// Eb/N0 rows of tables 5a/5b, in dB.
     const ROWS_DB: [f64; 5] = [0.0, 4.0, 8.0, 10.0, 12.0];

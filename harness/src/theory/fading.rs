@@ -187,16 +187,7 @@ mod tests {
     //! printed with fixed decimals: half a unit of the last digit).
     use super::*;
 
-    /// Table precision: 6 significant digits.
-    const TABLE_REL: f64 = 1e-5;
-
-    fn assert_rel(got: f64, want: f64, rel: f64, what: &str) {
-        let err = (got - want).abs() / want.abs();
-        assert!(
-            err <= rel,
-            "{what}: got {got:e}, want {want:e}, relative error {err:e} > {rel:e}"
-        );
-    }
+    use super::super::table::{assert_rel, TABLE_REL};
 
     /// Midpoint rule with `n` points of `g(theta)` over `[-pi/2, pi/2]`; for integrands of
     /// period pi (as below) it converges geometrically.

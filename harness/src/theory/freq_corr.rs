@@ -163,16 +163,7 @@ mod tests {
     //! prints 6 to 7 digits: half a unit of its last decimal).
     use super::*;
 
-    /// Table precision: 6 significant digits.
-    const TABLE_REL: f64 = 1e-5;
-
-    fn assert_rel(got: f64, want: f64, rel: f64, what: &str) {
-        let err = (got - want).abs() / want.abs();
-        assert!(
-            err <= rel,
-            "{what}: got {got:e}, want {want:e}, relative error {err:e} > {rel:e}"
-        );
-    }
+    use super::super::table::{assert_rel, TABLE_REL};
 
     fn assert_close(got: Complex<f64>, want: Complex<f64>, tol: f64, what: &str) {
         assert!(

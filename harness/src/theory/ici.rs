@@ -513,18 +513,10 @@ mod tests {
     //! lines with relative 1e-9.
     use super::*;
 
-    /// Table precision: 6 significant digits.
-    const TABLE_REL: f64 = 1e-5;
+    use super::super::table::{assert_rel, TABLE_REL};
+
     /// Check-line precision (10 to 12 digits printed).
     const CHECK_REL: f64 = 1e-9;
-
-    fn assert_rel(got: f64, want: f64, rel: f64, what: &str) {
-        let err = (got - want).abs() / want.abs();
-        assert!(
-            err <= rel,
-            "{what}: got {got:e}, want {want:e}, relative error {err:e} > {rel:e}"
-        );
-    }
 
     /// Absolute check for a value printed with `decimals` decimals: half a unit of the last
     /// digit, plus a small margin for our own rounding.

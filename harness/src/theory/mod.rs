@@ -16,3 +16,19 @@ pub mod freq_corr;
 pub mod ici;
 pub mod isi;
 pub mod phase_noise;
+
+/// Test helpers shared by the theory modules' checks against REFERENCES.md tables.
+#[cfg(test)]
+pub(crate) mod table {
+    /// Tables printed with 6 significant digits: relative tolerance 1e-5.
+    pub(crate) const TABLE_REL: f64 = 1e-5;
+
+    /// Asserts `|got − want| / |want| ≤ rel`, naming the check.
+    pub(crate) fn assert_rel(got: f64, want: f64, rel: f64, what: &str) {
+        let err = (got - want).abs() / want.abs();
+        assert!(
+            err <= rel,
+            "{what}: got {got:e}, want {want:e}, relative error {err:e} > {rel:e}"
+        );
+    }
+}
