@@ -6,7 +6,8 @@
 //! * [`dc_offset`] — a constant complex offset.
 //! * [`IqImbalance`] — receiver gain/phase imbalance, `y = μx + νx*`.
 //! * [`Adc`] — b-bit quantisation with clipping at full scale, Q15 output.
-//! * [`CwInterferer`] — a narrowband interferer: a CW tone with a duty cycle.
+//! * [`CwInterferer`] / [`NoiseBurst`] — narrowband interference: a CW tone, or Gaussian
+//!   noise over a few bins, each with a duty cycle ([`Interferer`] holds either).
 //! * [`fractional_delay`] / [`resample`] — timing offset and sampling-clock offset (cubic
 //!   interpolation).
 
@@ -96,9 +97,7 @@ impl IqImbalance {
     }
     /// The image rejection ratio `|μ|²/|ν|² = (1 + 2g cos φ + g²)/(1 − 2g cos φ + g²)`, dB.
     pub fn image_rejection_db(gain_db: f64, phase_deg: f64) -> f64 {
-        let g = 10f64.powf(gain_db / 20.0);
-        let c = phase_deg.to_radians().cos();
-        10.0 * ((1.0 + 2.0 * g * c + g * g) / (1.0 - 2.0 * g * c + g * g)).log10()
+        crate::theory::iq_image::image_rejection_db(gain_db, phase_deg)
     }
     /// Applies the imbalance (none: unchanged).
     pub fn apply(&self, samples: &mut [Cf32]) {
@@ -178,6 +177,128 @@ impl CwInterferer {
     }
 }
 
+/// A narrowband noise burst: complex Gaussian noise band-limited to `bandwidth_cycles` around
+/// `centre_cycles` (both cycles per sample), of mean power `power` while on, switched on for the
+/// first `duty` fraction of every `period_samples` samples. The band is shaped by a
+/// Blackman-windowed sinc low-pass (length ≈ 8/bandwidth, at most 1023 taps; stop band below
+/// −58 dB, common practice) and mixed up to the centre. It owns its random stream, seeded from
+/// one `u64`, and its filter state, so successive calls continue one stream.
+#[derive(Clone, Debug)]
+pub struct NoiseBurst {
+    centre_cycles: f64,
+    amplitude: f64,
+    duty: f64,
+    period: u64,
+    taps: Vec<f32>,
+    history: Vec<Cf32>,
+    pos: usize,
+    rng: HarnessRng,
+}
+
+impl NoiseBurst {
+    /// A burst of `power` (fraction of full scale squared) over `bandwidth_cycles` around
+    /// `centre_cycles`, on for `duty` of every `period_samples`, drawing from `seed`.
+    pub fn new(
+        centre_cycles: f64,
+        bandwidth_cycles: f64,
+        power: f64,
+        duty: f64,
+        period_samples: usize,
+        seed: u64,
+    ) -> Self {
+        let bw = bandwidth_cycles.clamp(1e-3, 1.0);
+        let len = ((8.0 / bw).ceil() as usize | 1).min(1023);
+        let mid = (len / 2) as f64;
+        let fc = bw / 2.0;
+        let mut taps: Vec<f64> = (0..len)
+            .map(|i| {
+                let t = i as f64 - mid;
+                let sinc = if t == 0.0 {
+                    2.0 * fc
+                } else {
+                    (2.0 * std::f64::consts::PI * fc * t).sin() / (std::f64::consts::PI * t)
+                };
+                let x = 2.0 * std::f64::consts::PI * i as f64 / (len - 1).max(1) as f64;
+                sinc * (0.42 - 0.5 * x.cos() + 0.08 * (2.0 * x).cos())
+            })
+            .collect();
+        // Unit output power for unit-power white input.
+        let energy = taps.iter().map(|h| h * h).sum::<f64>().sqrt();
+        for h in taps.iter_mut() {
+            *h /= energy;
+        }
+        Self {
+            centre_cycles,
+            amplitude: power.max(0.0).sqrt(),
+            duty: duty.clamp(0.0, 1.0),
+            period: period_samples.max(1) as u64,
+            taps: taps.into_iter().map(|h| h as f32).collect(),
+            history: vec![Cf32::new(0.0, 0.0); len],
+            pos: 0,
+            rng: crate::rng::stream_rng(seed, 0x6e62), // stream tag "nb"
+        }
+    }
+
+    /// FIR length, samples.
+    pub fn filter_len(&self) -> usize {
+        self.taps.len()
+    }
+
+    /// Adds the next `samples.len()` samples of the burst to `samples`, whose first sample has
+    /// index `start` in the stream (for the on/off pattern and the mixing phase). Zero power or
+    /// duty: unchanged, and no random numbers drawn.
+    pub fn add(&mut self, samples: &mut [Cf32], start: u64) {
+        if self.amplitude == 0.0 || self.duty == 0.0 {
+            return;
+        }
+        let on = (self.duty * self.period as f64).round() as u64;
+        let w = 2.0 * std::f64::consts::PI * self.centre_cycles;
+        let len = self.taps.len();
+        let scale = std::f32::consts::FRAC_1_SQRT_2;
+        for (k, s) in samples.iter_mut().enumerate() {
+            // White CN(0, 1) into the delay line (always, so the noise is stationary).
+            let re: f32 = StandardNormal.sample(&mut self.rng);
+            let im: f32 = StandardNormal.sample(&mut self.rng);
+            self.pos = if self.pos == 0 { len - 1 } else { self.pos - 1 };
+            self.history[self.pos] = Cf32::new(re * scale, im * scale);
+            let n = start + k as u64;
+            if n % self.period >= on {
+                continue;
+            }
+            let (newer, older) = self.history.split_at(self.pos);
+            let mut acc = Cf32::new(0.0, 0.0);
+            for (h, x) in self.taps.iter().zip(older.iter().chain(newer)) {
+                acc += x * *h;
+            }
+            let ph = w * n as f64;
+            let rot = Cf32::new(
+                (self.amplitude * ph.cos()) as f32,
+                (self.amplitude * ph.sin()) as f32,
+            );
+            *s += acc * rot;
+        }
+    }
+}
+
+/// A narrowband interferer of either kind, as the scenario file describes it.
+#[derive(Clone, Debug)]
+pub enum Interferer {
+    /// A CW tone.
+    Cw(CwInterferer),
+    /// A band-limited noise burst.
+    NoiseBurst(NoiseBurst),
+}
+
+impl Interferer {
+    /// Adds the next `samples.len()` samples (first at stream index `start`).
+    pub fn add(&mut self, samples: &mut [Cf32], start: u64) {
+        match self {
+            Self::Cw(cw) => cw.add(samples, start),
+            Self::NoiseBurst(nb) => nb.add(samples, start),
+        }
+    }
+}
+
 /// Catmull–Rom cubic interpolation of `x` at the (fractional) position `t`; outside the record
 /// the signal is taken as zero.
 fn cubic_at(x: &[Cf32], t: f64) -> Cf32 {
@@ -248,6 +369,8 @@ mod tests {
             period_samples: 10,
         }
         .add(&mut y, 0);
+        NoiseBurst::new(0.1, 0.05, 0.0, 1.0, 10, 4).add(&mut y, 0);
+        NoiseBurst::new(0.1, 0.05, 1.0, 0.0, 10, 4).add(&mut y, 0);
         y = fractional_delay(&y, 0.0);
         y = resample(&y, 0.0);
         assert_eq!(x, y);

@@ -9,11 +9,16 @@
 //!   rate, average fade duration and coherence time (Clarke 1968; Jakes 1974; Rappaport 2002).
 //! * [`freq_corr`]: frequency correlation of exponential and discrete delay profiles and the
 //!   coherence bandwidth (exponential Fourier pair; Rappaport 2002; Jakes 1974).
+//! * [`isi`]: ISI + ICI from channel taps beyond the cyclic prefix (derived from the windowing).
+//! * [`phase_noise`]: ICI and common phase error of Wiener phase noise (Pollet et al. 1995).
+//! * [`iq_image`]: image rejection and image interference from IQ imbalance (Tarighat et al.
+//!   2005).
 
 pub mod ber;
 pub mod fading;
 pub mod freq_corr;
 pub mod ici;
+pub mod iq_image;
 pub mod isi;
 pub mod phase_noise;
 
