@@ -285,8 +285,8 @@ impl NoiseBurst {
 pub enum Interferer {
     /// A CW tone.
     Cw(CwInterferer),
-    /// A band-limited noise burst.
-    NoiseBurst(NoiseBurst),
+    /// A band-limited noise burst (boxed: it carries its generator and filter state).
+    NoiseBurst(Box<NoiseBurst>),
 }
 
 impl Interferer {
