@@ -10,6 +10,7 @@ pub mod impair;
 pub mod link;
 pub mod noise;
 pub mod rng;
+pub mod rx_chain;
 pub mod scenario;
 pub mod simd;
 pub mod theory;

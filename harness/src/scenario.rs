@@ -177,9 +177,75 @@ pub struct Impairments {
     /// Carrier frequency offset, Hz (finite, |cfo| < sample_rate_hz / 2).
     #[serde(default = "defaults::cfo_hz")]
     pub cfo_hz: f64,
-    /// Sample clock offset, parts per million (finite).
+    /// Sample clock offset, parts per million (finite); positive: the receiver's clock is fast.
     #[serde(default = "defaults::sco_ppm")]
     pub sco_ppm: f64,
+    /// Timing offset, samples (finite): integer and fractional delay of the received stream.
+    #[serde(default = "defaults::timing_offset_samples")]
+    pub timing_offset_samples: f64,
+    /// 3-dB linewidth of Wiener phase noise of the local oscillator, Hz (finite, ≥ 0).
+    #[serde(default = "defaults::phase_noise_linewidth_hz")]
+    pub phase_noise_linewidth_hz: f64,
+    /// DC offset of the in-phase branch, fraction of ADC full scale (finite, |x| < 1).
+    #[serde(default = "defaults::dc_offset_i")]
+    pub dc_offset_i: f64,
+    /// DC offset of the quadrature branch, fraction of ADC full scale (finite, |x| < 1).
+    #[serde(default = "defaults::dc_offset_q")]
+    pub dc_offset_q: f64,
+    /// IQ gain imbalance, quadrature over in-phase, dB (finite, |x| ≤ 6).
+    #[serde(default = "defaults::iq_gain_db")]
+    pub iq_gain_db: f64,
+    /// IQ phase imbalance, degrees (finite, |x| ≤ 30).
+    #[serde(default = "defaults::iq_phase_deg")]
+    pub iq_phase_deg: f64,
+    /// ADC resolution per branch, bits: 0 for an ideal (unquantised) front end, else 4..=16.
+    #[serde(default = "defaults::adc_bits")]
+    pub adc_bits: u32,
+    /// RMS of each branch (I or Q) at the ADC input below full scale, dB (finite, ≥ 0); an
+    /// ideal AGC sets it over each record. Also the full-scale reference of the DC offset.
+    #[serde(default = "defaults::adc_backoff_db")]
+    pub adc_backoff_db: f64,
+    /// A narrowband interferer (`kind = "none"` for none).
+    #[serde(default = "defaults::interferer")]
+    pub interferer: InterfererSpec,
+}
+
+/// `[impairments.interferer]`: a narrowband interferer at the antenna.
+#[derive(Clone, Debug, PartialEq, Serialize, Deserialize)]
+#[serde(deny_unknown_fields)]
+pub struct InterfererSpec {
+    /// What kind: none, a CW tone, or a band-limited noise burst.
+    #[serde(default = "defaults::interferer_kind")]
+    pub kind: InterfererKind,
+    /// Centre frequency relative to the carrier, Hz (finite, |f| < sample_rate_hz / 2).
+    #[serde(default = "defaults::interferer_frequency_hz")]
+    pub frequency_hz: f64,
+    /// Bandwidth of a noise burst, Hz (finite, > 0, ≤ sample_rate_hz); unused for a tone.
+    #[serde(default = "defaults::interferer_bandwidth_hz")]
+    pub bandwidth_hz: f64,
+    /// Power while on, dB relative to the received signal power (dBc; finite).
+    #[serde(default = "defaults::interferer_power_dbc")]
+    pub power_dbc: f64,
+    /// Fraction of each period the interferer is on (0..=1).
+    #[serde(default = "defaults::interferer_duty_cycle")]
+    pub duty_cycle: f64,
+    /// Period of the on/off pattern, s (finite, > 0).
+    #[serde(default = "defaults::interferer_period_s")]
+    pub period_s: f64,
+}
+
+/// Kind of narrowband interferer.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Hash, Serialize, Deserialize)]
+pub enum InterfererKind {
+    /// No interferer (`"none"`).
+    #[serde(rename = "none")]
+    None,
+    /// A CW tone (`"cw"`).
+    #[serde(rename = "cw")]
+    Cw,
+    /// Gaussian noise over `bandwidth_hz` (`"noise"`).
+    #[serde(rename = "noise")]
+    Noise,
 }
 
 /// `[mcu]`: the target microcontroller, for the real-time budget.
@@ -487,6 +553,21 @@ mod defaults {
 
         cfo_hz: f64 = impairments.cfo_hz;
         sco_ppm: f64 = impairments.sco_ppm;
+        timing_offset_samples: f64 = impairments.timing_offset_samples;
+        phase_noise_linewidth_hz: f64 = impairments.phase_noise_linewidth_hz;
+        dc_offset_i: f64 = impairments.dc_offset_i;
+        dc_offset_q: f64 = impairments.dc_offset_q;
+        iq_gain_db: f64 = impairments.iq_gain_db;
+        iq_phase_deg: f64 = impairments.iq_phase_deg;
+        adc_bits: u32 = impairments.adc_bits;
+        adc_backoff_db: f64 = impairments.adc_backoff_db;
+        interferer: InterfererSpec = impairments.interferer;
+        interferer_kind: InterfererKind = impairments.interferer.kind;
+        interferer_frequency_hz: f64 = impairments.interferer.frequency_hz;
+        interferer_bandwidth_hz: f64 = impairments.interferer.bandwidth_hz;
+        interferer_power_dbc: f64 = impairments.interferer.power_dbc;
+        interferer_duty_cycle: f64 = impairments.interferer.duty_cycle;
+        interferer_period_s: f64 = impairments.interferer.period_s;
 
         mcu_core: McuCore = mcu.core;
         clock_hz: f64 = mcu.clock_hz;
@@ -743,6 +824,87 @@ impl Scenario {
         check(imp.sco_ppm.is_finite(), &["impairments.sco_ppm"], || {
             format!("sco_ppm must be finite, got {}", imp.sco_ppm)
         })?;
+        let in_range = |v: f64, lo: f64, hi: f64| v.is_finite() && v >= lo && v <= hi;
+        let range_rules: [(&str, f64, f64, f64); 7] = [
+            (
+                "timing_offset_samples",
+                imp.timing_offset_samples,
+                -1e6,
+                1e6,
+            ),
+            (
+                "phase_noise_linewidth_hz",
+                imp.phase_noise_linewidth_hz,
+                0.0,
+                f64::MAX,
+            ),
+            ("dc_offset_i", imp.dc_offset_i, -0.999_999, 0.999_999),
+            ("dc_offset_q", imp.dc_offset_q, -0.999_999, 0.999_999),
+            ("iq_gain_db", imp.iq_gain_db, -6.0, 6.0),
+            ("iq_phase_deg", imp.iq_phase_deg, -30.0, 30.0),
+            ("adc_backoff_db", imp.adc_backoff_db, 0.0, 100.0),
+        ];
+        for (key, v, lo, hi) in range_rules {
+            let path = format!("impairments.{key}");
+            check(in_range(v, lo, hi), &[&path], || {
+                let hi = if hi == f64::MAX {
+                    "∞".to_owned()
+                } else {
+                    hi.to_string()
+                };
+                format!("{key} must be finite and in {lo}..={hi}, got {v}")
+            })?;
+        }
+        check(
+            imp.adc_bits == 0 || (4..=16).contains(&imp.adc_bits),
+            &["impairments.adc_bits"],
+            || format!("adc_bits must be 0 (ideal) or 4..=16, got {}", imp.adc_bits),
+        )?;
+        let intf = &imp.interferer;
+        // Frequency and bandwidth are checked against the band only when they are used.
+        let used = intf.kind != InterfererKind::None;
+        let noise = intf.kind == InterfererKind::Noise;
+        check(
+            !used
+                || (intf.frequency_hz.is_finite()
+                    && intf.frequency_hz.abs() < band.sample_rate_hz / 2.0),
+            &["impairments.interferer.frequency_hz", "band.sample_rate_hz"],
+            || {
+                format!(
+                    "|frequency_hz| must be less than half the sample rate ({} Hz), got {}",
+                    band.sample_rate_hz / 2.0,
+                    intf.frequency_hz
+                )
+            },
+        )?;
+        check(
+            !noise
+                || (intf.bandwidth_hz.is_finite()
+                    && intf.bandwidth_hz > 0.0
+                    && intf.bandwidth_hz <= band.sample_rate_hz),
+            &["impairments.interferer.bandwidth_hz", "band.sample_rate_hz"],
+            || {
+                format!(
+                    "bandwidth_hz must be > 0 and at most the sample rate ({} Hz), got {}",
+                    band.sample_rate_hz, intf.bandwidth_hz
+                )
+            },
+        )?;
+        check(
+            intf.power_dbc.is_finite(),
+            &["impairments.interferer.power_dbc"],
+            || format!("power_dbc must be finite, got {}", intf.power_dbc),
+        )?;
+        check(
+            in_range(intf.duty_cycle, 0.0, 1.0),
+            &["impairments.interferer.duty_cycle"],
+            || format!("duty_cycle must be in 0..=1, got {}", intf.duty_cycle),
+        )?;
+        check(
+            intf.period_s.is_finite() && intf.period_s > 0.0,
+            &["impairments.interferer.period_s"],
+            || format!("period_s must be finite and > 0, got {}", intf.period_s),
+        )?;
 
         let mcu = &self.mcu;
         check(
@@ -1074,7 +1236,9 @@ mod tests {
         let mut out = Vec::new();
         for (k, v) in table {
             match v {
-                toml::Value::Table(t) => out.extend(t.keys().map(|k2| format!("{k}.{k2}"))),
+                toml::Value::Table(t) => {
+                    out.extend(key_paths(t).iter().map(|k2| format!("{k}.{k2}")))
+                }
                 _ => out.push(k.clone()),
             }
         }
@@ -1088,7 +1252,7 @@ mod tests {
         let written: toml::Table = toml::from_str(&Scenario::default().to_toml_string()).unwrap();
         let file: toml::Table = toml::from_str(DEFAULT_SCENARIO_TOML).unwrap();
         assert_eq!(key_paths(&file), key_paths(&written));
-        assert_eq!(key_paths(&written).len(), 2 + 2 + 11 + 5 + 3 + 2 + 3);
+        assert_eq!(key_paths(&written).len(), 2 + 2 + 11 + 5 + 3 + (10 + 6) + 3);
     }
 
     #[test]
@@ -1271,6 +1435,32 @@ mod tests {
         assert_eq!(err_at("[mcu]\nclock_hz = 0.0\n").1, "2:12");
         assert_eq!(err_at("[band]\ncarrier_hz = 0.0\n").1, "2:14");
         assert_eq!(err_at("name = \"  \"\n").1, "1:8");
+    }
+
+    #[test]
+    fn impairment_values_are_checked_where_they_are_written() {
+        assert_eq!(err_at("[impairments]\nadc_bits = 3\n").1, "2:12");
+        assert!(parse("[impairments]\nadc_bits = 12\n").is_ok());
+        assert_eq!(err_at("[impairments]\ndc_offset_q = 1.0\n").1, "2:15");
+        assert_eq!(err_at("[impairments]\niq_phase_deg = 45.0\n").1, "2:16");
+        assert_eq!(
+            err_at("[impairments]\nphase_noise_linewidth_hz = -1.0\n").1,
+            "2:28"
+        );
+        let (e, at) = err_at("[impairments.interferer]\nkind = \"tone\"\n");
+        assert_eq!(at, "2:8");
+        assert!(e.to_string().contains("none"), "{e}");
+        // Frequency is checked against the band only when an interferer is switched on.
+        let off = "[band]\nsample_rate_hz = 1000.0\n";
+        assert!(parse(off).is_ok());
+        let on = "[band]\nsample_rate_hz = 1000.0\n[impairments.interferer]\nkind = \"cw\"\nfrequency_hz = 600.0\n";
+        assert_eq!(err_at(on).1, "5:16");
+        let burst = "[impairments.interferer]\nkind = \"noise\"\nbandwidth_hz = 0.0\n";
+        assert_eq!(err_at(burst).1, "3:16");
+        assert_eq!(
+            err_at("[impairments.interferer]\nduty_cycle = 1.5\n").1,
+            "2:14"
+        );
     }
 
     #[test]
