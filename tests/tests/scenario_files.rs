@@ -69,3 +69,26 @@ fn default_scenario_runs_and_agrees_with_theory() {
         .count();
     assert!(judged >= 20, "only {judged} points reached a verdict");
 }
+
+#[test]
+fn cheap_front_end_example_parses_and_characterises_every_impairment() {
+    let path = std::path::Path::new(env!("CARGO_MANIFEST_DIR"))
+        .join("../harness/scenarios/cheap-front-end.toml");
+    let s = Scenario::from_file(&path).unwrap();
+    let text = flatbin_harness::characterise::render_text(
+        &flatbin_harness::characterise::characterise(&s).unwrap(),
+    );
+    for line in [
+        "phase noise",
+        "IQ imbalance",
+        "DC offset",
+        "ADC",
+        "timing",
+        "interferer",
+    ] {
+        assert!(text.contains(line), "`{line}` missing from:\n{text}");
+    }
+    // −42 kHz ± 7.8 kHz at 3906.25 Hz spacing: bins −13..=−9 (arithmetic by hand).
+    let i = flatbin_harness::characterise::impairment_summary(&s);
+    assert_eq!(i.interferer_bins, Some((-13, -9)));
+}
