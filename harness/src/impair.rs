@@ -8,8 +8,8 @@
 //! * [`Adc`] — b-bit quantisation with clipping at full scale, Q15 output.
 //! * [`CwInterferer`] / [`NoiseBurst`] — narrowband interference: a CW tone, or Gaussian
 //!   noise over a few bins, each with a duty cycle ([`Interferer`] holds either).
-//! * [`fractional_delay`] / [`resample`] — timing offset and sampling-clock offset (cubic
-//!   interpolation).
+//! * [`fractional_delay`] / [`resample`] — timing offset and sampling-clock offset (32-tap
+//!   Kaiser-windowed sinc interpolation).
 
 use flatbin::fixed::Cq15;
 use flatbin::Cf32;
@@ -299,46 +299,101 @@ impl Interferer {
     }
 }
 
-/// Catmull–Rom cubic interpolation of `x` at the (fractional) position `t`; outside the record
-/// the signal is taken as zero.
-fn cubic_at(x: &[Cf32], t: f64) -> Cf32 {
-    let i = t.floor();
-    let u = (t - i) as f32;
-    let i = i as i64;
-    let get = |k: i64| {
-        if k >= 0 && (k as usize) < x.len() {
-            x[k as usize]
-        } else {
-            Cf32::new(0.0, 0.0)
+/// Half-length of the fractional-delay interpolator, samples (32 taps in all).
+const INTERP_HALF: usize = 16;
+/// Fractional positions tabulated per sample (nearest is used: delay error ≤ 1/8192 sample).
+const INTERP_PHASES: usize = 4096;
+/// Kaiser window shape of the interpolator (β = 8: sidelobes below −60 dB; common practice).
+const INTERP_KAISER_BETA: f64 = 8.0;
+
+/// Zeroth-order modified Bessel function of the first kind, by its power series.
+fn bessel_i0(x: f64) -> f64 {
+    let (mut sum, mut term, q) = (1.0f64, 1.0f64, x * x / 4.0);
+    for k in 1..64 {
+        term *= q / (k * k) as f64;
+        sum += term;
+        if term < 1e-17 * sum {
+            break;
         }
-    };
-    let (p0, p1, p2, p3) = (get(i - 1), get(i), get(i + 1), get(i + 2));
-    let u2 = u * u;
-    let u3 = u2 * u;
-    p1 + (p2 - p0) * (0.5 * u)
-        + (p0 * 2.0 - p1 * 5.0 + p2 * 4.0 - p3) * (0.5 * u2)
-        + (p1 * 3.0 - p0 - p2 * 3.0 + p3) * (0.5 * u3)
+    }
+    sum
 }
 
-/// Delays `x` by `delay_samples` (integer part exact, fractional part by cubic
-/// interpolation); samples before the start are zero. Zero delay: a copy.
+/// The polyphase table of the Kaiser-windowed sinc interpolator: row `p` holds the 32 taps
+/// for fractional position `p / INTERP_PHASES`, each row normalised to unit DC gain.
+fn interp_table() -> &'static [[f32; 2 * INTERP_HALF]] {
+    static TABLE: std::sync::OnceLock<Vec<[f32; 2 * INTERP_HALF]>> = std::sync::OnceLock::new();
+    TABLE.get_or_init(|| {
+        let i0b = bessel_i0(INTERP_KAISER_BETA);
+        (0..=INTERP_PHASES)
+            .map(|p| {
+                let u = p as f64 / INTERP_PHASES as f64;
+                let mut row = [0.0f64; 2 * INTERP_HALF];
+                for (j, h) in row.iter_mut().enumerate() {
+                    // Tap j multiplies x[i + j − (HALF − 1)]; its distance from t = i + u.
+                    let d = j as f64 - (INTERP_HALF as f64 - 1.0) - u;
+                    let sinc = if d == 0.0 {
+                        1.0
+                    } else {
+                        (std::f64::consts::PI * d).sin() / (std::f64::consts::PI * d)
+                    };
+                    let r = d / INTERP_HALF as f64;
+                    let w = if r.abs() < 1.0 {
+                        bessel_i0(INTERP_KAISER_BETA * (1.0 - r * r).sqrt()) / i0b
+                    } else {
+                        0.0
+                    };
+                    *h = sinc * w;
+                }
+                let dc: f64 = row.iter().sum();
+                row.map(|h| (h / dc) as f32)
+            })
+            .collect()
+    })
+}
+
+/// Band-limited interpolation of `x` at the (fractional) position `t`: a 32-tap
+/// Kaiser-windowed sinc (error below −60 dB for content within ±0.4 cycles/sample; common
+/// practice for fractional-delay filters). Outside the record the signal is taken as zero.
+fn interp_at(x: &[Cf32], t: f64) -> Cf32 {
+    let i = t.floor();
+    let p = ((t - i) * INTERP_PHASES as f64).round() as usize;
+    let (i, p) = if p == INTERP_PHASES {
+        (i as i64 + 1, 0)
+    } else {
+        (i as i64, p)
+    };
+    let row = &interp_table()[p];
+    let first = i - (INTERP_HALF as i64 - 1);
+    let mut acc = Cf32::new(0.0, 0.0);
+    for (j, h) in row.iter().enumerate() {
+        let k = first + j as i64;
+        if k >= 0 && (k as usize) < x.len() {
+            acc += x[k as usize] * *h;
+        }
+    }
+    acc
+}
+
+/// Delays `x` by `delay_samples` (integer and fractional part by band-limited interpolation;
+/// an integer delay is an exact shift); samples before the start are zero. Zero delay: a copy.
 pub fn fractional_delay(x: &[Cf32], delay_samples: f64) -> Vec<Cf32> {
     if delay_samples == 0.0 {
         return x.to_vec();
     }
     (0..x.len())
-        .map(|n| cubic_at(x, n as f64 - delay_samples))
+        .map(|n| interp_at(x, n as f64 - delay_samples))
         .collect()
 }
 
 /// Sampling-clock offset: the receiver's clock runs `ppm` parts per million fast, so output
-/// sample `n` is the input at `n·(1 + ppm·1e-6)` (cubic interpolation). Zero: a copy.
+/// sample `n` is the input at `n·(1 + ppm·1e-6)` (band-limited interpolation). Zero: a copy.
 pub fn resample(x: &[Cf32], ppm: f64) -> Vec<Cf32> {
     if ppm == 0.0 {
         return x.to_vec();
     }
     let r = 1.0 + ppm * 1e-6;
-    (0..x.len()).map(|n| cubic_at(x, n as f64 * r)).collect()
+    (0..x.len()).map(|n| interp_at(x, n as f64 * r)).collect()
 }
 
 #[cfg(test)]
