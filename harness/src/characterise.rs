@@ -150,8 +150,9 @@ pub fn impairment_summary(scenario: &Scenario) -> ImpairmentSummary {
     let iq = imp.iq_gain_db != 0.0 || imp.iq_phase_deg != 0.0;
     let dc_sq = imp.dc_offset_i.powi(2) + imp.dc_offset_q.powi(2);
     let adc = imp.adc_bits > 0;
-    // Clip level in branch standard deviations: 10^(B/20).
-    let clip_sigma = 10f64.powf(imp.adc_backoff_db / 20.0);
+    // Clip level in branch standard deviations: full scale 1 per branch against a branch
+    // variance of 10^(−B/10)/2 (total power at −B dBFS), so √2·10^(B/20).
+    let clip_sigma = std::f64::consts::SQRT_2 * 10f64.powf(imp.adc_backoff_db / 20.0);
     let intf = &imp.interferer;
     let intf_on = intf.kind != InterfererKind::None && intf.duty_cycle > 0.0;
     let half_width = match intf.kind {
@@ -171,16 +172,13 @@ pub fn impairment_summary(scenario: &Scenario) -> ImpairmentSummary {
                 .to_degrees(),
         ),
         image_rejection_db: on(iq, image_rejection_db(imp.iq_gain_db, imp.iq_phase_deg)),
-        // DC of d × full scale against a signal of 2σ² with full scale = σ·10^(B/20).
-        dc_dbc: on(
-            dc_sq > 0.0,
-            10.0 * (dc_sq * clip_sigma * clip_sigma / 2.0).log10(),
-        ),
-        // Gaussian signal of branch RMS σ = 10^(−B/20) against uniform quantisation noise
-        // Δ²/12, Δ = 2^(1−b): 6.02·b + 4.77 − B dB (common practice).
+        // DC of d × full scale against a signal of power 10^(−B/10) (full scale 1).
+        dc_dbc: on(dc_sq > 0.0, 10.0 * dc_sq.log10() + imp.adc_backoff_db),
+        // Total power 10^(−B/10) over two branches of quantisation noise Δ²/12 each, Δ = 2^(1−b):
+        // 6.02·b + 1.76 − B dB, the full-scale-sinusoid rule (common practice).
         adc_sqnr_db: on(
             adc,
-            6.02 * f64::from(imp.adc_bits) + 4.77 - imp.adc_backoff_db,
+            6.02 * f64::from(imp.adc_bits) + 1.76 - imp.adc_backoff_db,
         ),
         adc_clip_probability: on(adc, libm::erfc(clip_sigma / std::f64::consts::SQRT_2)),
         sco_drift_per_frame_samples: imp.sco_ppm * 1e-6 * frame as f64,
@@ -321,10 +319,11 @@ mod tests {
         sc.impairments.interferer.frequency_hz = 31_250.0; // bin 8 at 3906.25 Hz spacing
         sc.impairments.interferer.bandwidth_hz = 15_625.0; // 4 bins → 6..=10
         let i = impairment_summary(&sc);
-        // 6.02·10 + 4.77 − 12 = 52.97 dB (arithmetic by hand of the common-practice rule).
-        assert!((i.adc_sqnr_db.unwrap() - 52.97).abs() < 1e-9);
-        // Clip at 10^(12/20) = 3.981σ: P(|x| > 3.981σ) = 6.86e-5 (normal table, from memory).
-        assert!((i.adc_clip_probability.unwrap() / 6.86e-5 - 1.0).abs() < 0.02);
+        // 6.02·10 + 1.76 − 12 = 49.96 dB (arithmetic by hand of the common-practice rule).
+        assert!((i.adc_sqnr_db.unwrap() - 49.96).abs() < 1e-9);
+        // Clip at √2·10^(12/20) = 5.631σ: P(|x| > 5.631σ) = 1.801e-8 (erfc(3.981), evaluated
+        // with Python's math.erfc).
+        assert!((i.adc_clip_probability.unwrap() / 1.801e-8 - 1.0).abs() < 0.01);
         assert!((i.phase_noise_beta_t.unwrap() - 0.01).abs() < 1e-12);
         // CPE variance ≈ 2πβT/3 = 0.020944 rad² → 8.29° RMS (Armada 2001 limit, from memory).
         assert!((i.phase_noise_cpe_rms_deg.unwrap() - 8.29).abs() < 0.1);

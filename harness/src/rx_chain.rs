@@ -7,8 +7,9 @@
 //! 4. mixer: IQ gain/phase imbalance;
 //! 5. DC offset (a fraction of ADC full scale);
 //! 6. sampling: timing offset (integer + fractional) and sampling-clock offset;
-//! 7. ideal AGC and ADC: the record's RMS is set to `adc_backoff_db` below full scale and each
-//!    branch is quantised to `adc_bits` bits with clipping, Q15 output.
+//! 7. ideal AGC and ADC: the record's power is set to `adc_backoff_db` below full scale (dBFS:
+//!    total complex power against a full-scale complex sinusoid, DESIGN.md) and each branch is
+//!    quantised to `adc_bits` bits with clipping, Q15 output.
 //!
 //! Everything draws from one generator keyed by `(scenario seed, stream)`, so a record is
 //! reproducible from one `u64` pair. With every impairment at zero strength and no noise the
@@ -126,11 +127,11 @@ impl RxChain {
         );
         self.phase_noise.apply(&mut y, &mut self.rng);
         self.iq.apply(&mut y);
-        // Full scale: the level at which the record's RMS sits `backoff_db` below it.
+        // Full scale: the level at which the record's power sits `backoff_db` below it (dBFS).
         let needs_level = self.dc != Cf32::new(0.0, 0.0) || self.adc.is_some();
         let full_scale = if needs_level {
             let p = y.iter().map(|v| f64::from(v.norm_sqr())).sum::<f64>() / y.len().max(1) as f64;
-            let fs = (p / 2.0).sqrt() * 10f64.powf(self.backoff_db / 20.0);
+            let fs = p.sqrt() * 10f64.powf(self.backoff_db / 20.0);
             if fs > 0.0 && fs.is_finite() {
                 fs
             } else {

@@ -201,8 +201,9 @@ pub struct Impairments {
     /// ADC resolution per branch, bits: 0 for an ideal (unquantised) front end, else 4..=16.
     #[serde(default = "defaults::adc_bits")]
     pub adc_bits: u32,
-    /// RMS of each branch (I or Q) at the ADC input below full scale, dB (finite, ≥ 0); an
-    /// ideal AGC sets it over each record. Also the full-scale reference of the DC offset.
+    /// Signal level at the ADC input below full scale, dB (dBFS: total complex power against a
+    /// full-scale complex sinusoid; finite, ≥ 0); an ideal AGC sets it over each record. Also
+    /// the full-scale reference of the DC offset.
     #[serde(default = "defaults::adc_backoff_db")]
     pub adc_backoff_db: f64,
     /// A narrowband interferer (`kind = "none"` for none).
