@@ -9,6 +9,7 @@ pub mod evaluate;
 pub mod impair;
 pub mod link;
 pub mod noise;
+pub mod plots;
 pub mod rng;
 pub mod rx_chain;
 pub mod scenario;

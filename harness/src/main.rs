@@ -29,6 +29,10 @@ enum Command {
         /// Print JSON instead of text.
         #[arg(long)]
         json: bool,
+        /// Also write the channel figures (Doppler spectrum, autocorrelation, envelope CDF,
+        /// ICI against fd·T; simulated beside theory) into this directory as SVG and PNG.
+        #[arg(long, value_name = "DIR")]
+        plots: Option<PathBuf>,
     },
     /// Print a scenario as TOML (the built-in default when no file is given): a starting point
     /// for your own.
@@ -82,13 +86,29 @@ fn run(cli: Cli) -> Result<ExitCode> {
                 ExitCode::from(2)
             })
         }
-        Command::Channel { file, json } => {
+        Command::Channel { file, json, plots } => {
             let (scenario, _, _) = load(file.as_ref())?;
             let summary = flatbin_harness::characterise::characterise(&scenario)?;
             if json {
                 println!("{}", serde_json::to_string_pretty(&summary)?);
             } else {
                 print!("{}", flatbin_harness::characterise::render_text(&summary));
+            }
+            if let Some(dir) = plots {
+                let written = flatbin_harness::plots::write_plots(&scenario, &dir)?;
+                // With --json, stdout stays pure JSON: the list goes to stderr.
+                let mut list = String::from("plots written:\n");
+                for f in &written.files {
+                    list.push_str(&format!("  {}\n", f.display()));
+                }
+                for n in &written.data.notes {
+                    list.push_str(&format!("  note: {n}\n"));
+                }
+                if json {
+                    eprint!("{list}");
+                } else {
+                    print!("{list}");
+                }
             }
             Ok(ExitCode::SUCCESS)
         }
