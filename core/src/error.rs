@@ -62,6 +62,26 @@ pub enum ConfigError {
     PilotBoostOutOfRange,
     /// The pilot PRBS seed must be nonzero (an all-zero LFSR never leaves zero).
     PilotSeedZero,
+    /// The estimator needs `2 ≤ K ≤` lattice bins (pilot positions over the pattern).
+    InterpolationTaps {
+        /// Frequency taps per bin requested.
+        taps: usize,
+        /// Lattice bins available.
+        lattice: usize,
+    },
+    /// The estimator's history depth must be 1..=255 and the pilot pattern period at most
+    /// `estimate::MAX_PATTERN_PERIOD`.
+    EstimatorHistoryUnsupported {
+        /// History depth M.
+        depth: usize,
+        /// Pattern period, symbols.
+        pattern_period: usize,
+    },
+    /// Channel model (delay spread, Doppler), noise variance or forgetting factor invalid:
+    /// each must be finite, delay and Doppler ≥ 0, noise > 0, `0 ≤ λ < 1`.
+    EstimatorModelInvalid,
+    /// The estimator design was numerically singular (not positive definite).
+    EstimatorDesignFailed,
     /// A stage was built for an FFT size that differs from the numerology's.
     FftSizeMismatch {
         /// FFT size of the numerology.
@@ -113,6 +133,26 @@ impl fmt::Display for ConfigError {
                 f.write_str("pilot boost must be finite and within -20..=12 dB")
             }
             Self::PilotSeedZero => f.write_str("pilot PRBS seed must be nonzero"),
+            Self::InterpolationTaps { taps, lattice } => write!(
+                f,
+                "{taps} interpolation taps per bin: need at least 2 and at most the {lattice} \
+                 pilot positions"
+            ),
+            Self::EstimatorHistoryUnsupported {
+                depth,
+                pattern_period,
+            } => write!(
+                f,
+                "history depth {depth} / pilot pattern period {pattern_period} unsupported: \
+                 depth 1..=255, period at most 16"
+            ),
+            Self::EstimatorModelInvalid => f.write_str(
+                "estimator model invalid: delay spread and Doppler finite and >= 0, noise \
+                 variance finite and > 0, forgetting factor in [0, 1)",
+            ),
+            Self::EstimatorDesignFailed => {
+                f.write_str("estimator design is singular (not positive definite)")
+            }
             Self::FftSizeMismatch { numerology, stage } => write!(
                 f,
                 "stage built for FFT size {stage} but the numerology uses {numerology}"

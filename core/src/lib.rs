@@ -72,16 +72,21 @@
     )
 )]
 
+pub mod correlation;
 pub mod demap;
+pub mod equalize;
 pub mod error;
+pub mod estimate;
 pub mod fft;
 pub mod fft_q15;
 pub mod fixed;
 pub mod front;
+pub mod linalg;
 pub mod modulation;
 pub mod numerology;
 pub mod packed;
 pub mod pilots;
+pub mod receiver;
 pub mod transmit;
 pub mod transmit_q15;
 
