@@ -6,6 +6,7 @@
 pub mod channel;
 pub mod characterise;
 pub mod evaluate;
+pub mod fading_link;
 pub mod impair;
 pub mod link;
 pub mod noise;

@@ -123,6 +123,16 @@ impl Tdl {
         self.taps.len()
     }
 
+    /// The taps as `(delay, amplitude × gain)` with the gain held for the current block
+    /// ([`Variation::HeldPerBlock`], after the block has been processed): the exact channel a
+    /// block saw, for ideal channel knowledge. Zero gains under [`Variation::Continuous`].
+    pub fn held_taps(&self) -> Vec<(usize, Cf32)> {
+        self.taps
+            .iter()
+            .map(|t| (t.delay, t.held)) // the held gain includes the amplitude
+            .collect()
+    }
+
     /// Interpolation step of the fading processes, samples.
     pub fn step(&self) -> usize {
         self.taps.first().map_or(1, |t| t.fading.step())
