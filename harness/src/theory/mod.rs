@@ -7,6 +7,10 @@
 //!   and CFO leakage, ICI, SIR and SNR loss (Moose 1994; Pollet et al. 1995; Shu et al. 2006).
 //! * [`fading`]: Clarke/Jakes fading statistics: ACF, Doppler PSD, envelope CDF, level-crossing
 //!   rate, average fade duration and coherence time (Clarke 1968; Jakes 1974; Rappaport 2002).
+//! * [`estimation`]: analytic MSE of any linear pilot-aided channel estimator and the LMMSE
+//!   (Wiener) weights for a separable time x frequency correlation, plus the effective SNR of
+//!   an estimate (Li, Cimini & Sollenberger 1998; Edfors et al. 1998; Hoeher, Kaiser &
+//!   Robertson 1997; Hassibi & Hochwald 2003).
 //! * [`freq_corr`]: frequency correlation of exponential and discrete delay profiles and the
 //!   coherence bandwidth (exponential Fourier pair; Rappaport 2002; Jakes 1974).
 //! * [`isi`]: ISI + ICI from channel taps beyond the cyclic prefix (derived from the windowing).
@@ -15,6 +19,7 @@
 //!   2005).
 
 pub mod ber;
+pub mod estimation;
 pub mod fading;
 pub mod freq_corr;
 pub mod ici;
