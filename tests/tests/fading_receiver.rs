@@ -1,7 +1,7 @@
 //! The receiver over multipath Rayleigh fading: ideal channel knowledge against the flat
 //! Rayleigh closed forms (REFERENCES item 5), and the core's estimator.
 
-use flatbin::numerology::{NumerologyParams, PilotParams};
+use flatbin::numerology::NumerologyParams;
 use flatbin::{Modulation, Numerology};
 use flatbin_harness::channel::profile::{DelayProfile, Quantisation};
 use flatbin_harness::fading_link::{fading_errors, Csi, FadingChannel};
