@@ -53,6 +53,9 @@ pub struct FadingChannel {
     pub held: bool,
     /// OFDM symbols per frame (one channel draw per frame).
     pub symbols_per_frame: usize,
+    /// First symbol of each frame whose estimation error counts towards the MSE (skip the
+    /// time filter's warm-up).
+    pub mse_from_symbol: usize,
 }
 
 /// What [`fading_errors`] counted.
@@ -67,6 +70,8 @@ pub struct FadingCount {
     /// Mean squared estimation error per used bin over all symbols (held channel and
     /// estimated CSI only; `None` otherwise).
     pub mse: Option<f64>,
+    /// The same, over each symbol's pilot bins only.
+    pub mse_pilots: Option<f64>,
 }
 
 /// Counts bit errors of `modulation` at `es_n0_db` over `channel` with `csi`, until `stop`.
@@ -149,7 +154,7 @@ fn run<const N: usize>(
         symbols: 0,
     };
     let (mut frames, mut sum, mut sum_sq) = (0u64, 0.0f64, 0.0f64);
-    let (mut se, mut se_n) = (0.0f64, 0u64);
+    let (mut se, mut se_n, mut sp, mut sp_n) = (0.0f64, 0u64, 0.0f64, 0u64);
     while count.errors < stop.min_errors && count.bits < stop.max_bits {
         let mut line = Tdl::new(&channel.taps, &params, variation, rng);
         if let Some(r) = receiver.as_mut() {
@@ -192,10 +197,15 @@ fn run<const N: usize>(
                     for (l, b) in llrs[..c.llrs].iter().zip(&bits) {
                         errors += u64::from(u8::from(*l < 0.0) != *b);
                     }
-                    if channel.held {
+                    if channel.held && s >= channel.mse_from_symbol {
                         for (u, e) in r.estimator().estimate().iter().enumerate() {
-                            se += f64::from((e - h_true[numerology.fft_index(u)]).norm_sqr());
+                            let err = f64::from((e - h_true[numerology.fft_index(u)]).norm_sqr());
+                            se += err;
                             se_n += 1;
+                            if numerology.is_pilot(u, symbol) {
+                                sp += err;
+                                sp_n += 1;
+                            }
                         }
                     }
                 }
@@ -222,5 +232,6 @@ fn run<const N: usize>(
         frames,
         frame_ber_sd,
         mse: (se_n > 0).then(|| se / se_n as f64),
+        mse_pilots: (sp_n > 0).then(|| sp / sp_n as f64),
     })
 }
