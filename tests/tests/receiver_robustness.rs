@@ -35,7 +35,7 @@ fn faded_bins_give_quiet_llrs_and_nothing_is_ever_non_finite() {
     let nu = Numerology::new(NumerologyParams::default()).unwrap();
     let m = Modulation::Qam16;
     let k = m.bits_per_symbol();
-    let mut tx = Transmitter::new(nu, MicroFft::<N>::new()).unwrap();
+    let tx = Transmitter::new(nu, MicroFft::<N>::new()).unwrap();
     let bits: Vec<u8> = (0..tx.bits_per_ofdm_symbol(m, 0))
         .map(|i| (i % 3 == 0) as u8)
         .collect();
