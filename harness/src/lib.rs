@@ -5,6 +5,7 @@
 
 pub mod channel;
 pub mod characterise;
+pub mod estimator_model;
 pub mod evaluate;
 pub mod fading_link;
 pub mod impair;

@@ -70,9 +70,8 @@ fn ideal_csi_multipath_ber_matches_flat_rayleigh() {
 fn predicted_ber(nu: &Numerology, bps: u32, es_n0_db: f64, rms: f64, taps: &[(usize, f64)]) -> f64 {
     use flatbin::correlation::ChannelModel;
     use flatbin::estimate::{ChannelEstimator, EstimatorConfig, FreqInterpolation, TimeFilter};
-    use flatbin_harness::theory::estimation::{
-        ber_rayleigh_with_estimate, error_covariance_diag, FreqCorr, GridPos, SeparableCorr,
-    };
+    use flatbin_harness::estimator_model;
+    use flatbin_harness::theory::estimation::{FreqCorr, SeparableCorr};
     let fs = f64::from(nu.sample_rate_hz());
     let n0 = 10f64.powf(-es_n0_db / 10.0);
     let cfg = EstimatorConfig {
@@ -85,38 +84,12 @@ fn predicted_ber(nu: &Numerology, bps: u32, es_n0_db: f64, rms: f64, taps: &[(us
         noise_var: n0 as f32,
     };
     let est = Box::new(ChannelEstimator::<64, 4, 4>::new(nu, cfg).unwrap());
-    let pilots: Vec<GridPos> = (0..est.lattice_len())
-        .map(|j| GridPos::new(i64::from(nu.logical_bin(est.lattice_bin(j).unwrap())), 0))
-        .collect();
-    let data: Vec<usize> = (0..nu.used_len()).filter(|&u| !nu.is_pilot(u, 0)).collect();
-    let targets: Vec<GridPos> = data
-        .iter()
-        .map(|&u| GridPos::new(i64::from(nu.logical_bin(u)), 0))
-        .collect();
-    let rows: Vec<_> = data
-        .iter()
-        .map(|&u| {
-            let (first, w) = est.freq_taps(u).unwrap();
-            w.iter()
-                .enumerate()
-                .map(|(i, t)| {
-                    (
-                        first + i,
-                        num_complex::Complex::new(f64::from(t.re), f64::from(t.im)),
-                    )
-                })
-                .collect()
-        })
-        .collect();
     let corr = SeparableCorr::freq_only(FreqCorr::DelayPdp {
         taps: taps.iter().map(|&(d, p)| (d as f64, p)).collect(),
         n_fft: 64,
     });
-    let mse = error_covariance_diag(&corr, &pilots, &targets, &rows, n0).unwrap();
-    mse.iter()
-        .map(|&m| ber_rayleigh_with_estimate(bps, 1.0 / n0, m).unwrap())
-        .sum::<f64>()
-        / mse.len() as f64
+    let mse = estimator_model::frequency_stage_mse(nu, &est, 0, &corr, n0).unwrap();
+    estimator_model::predicted_ber(bps, 1.0 / n0, &mse).unwrap()
 }
 
 /// Es/N0 (dB) at which a decreasing `ber(dB)` crosses `target`, by bisection on [lo, hi].
