@@ -56,6 +56,9 @@ pub struct FadingChannel {
     /// First symbol of each frame whose estimation error counts towards the MSE (skip the
     /// time filter's warm-up).
     pub mse_from_symbol: usize,
+    /// Fewest frames (independent channel draws) before the stop rule may end a point: errors
+    /// in fading come in bursts, so the error count alone says little about precision.
+    pub min_frames: u64,
 }
 
 /// What [`fading_errors`] counted.
@@ -155,7 +158,9 @@ fn run<const N: usize>(
     };
     let (mut frames, mut sum, mut sum_sq) = (0u64, 0.0f64, 0.0f64);
     let (mut se, mut se_n, mut sp, mut sp_n) = (0.0f64, 0u64, 0.0f64, 0u64);
-    while count.errors < stop.min_errors && count.bits < stop.max_bits {
+    while (count.errors < stop.min_errors || frames < channel.min_frames)
+        && count.bits < stop.max_bits
+    {
         let mut line = Tdl::new(&channel.taps, &params, variation, rng);
         if let Some(r) = receiver.as_mut() {
             r.reset();

@@ -7,6 +7,7 @@ pub mod channel;
 pub mod characterise;
 pub mod estimator_model;
 pub mod evaluate;
+pub mod evaluate_fading;
 pub mod fading_link;
 pub mod impair;
 pub mod link;

@@ -7,6 +7,7 @@ use std::process::ExitCode;
 use anyhow::Result;
 use clap::{Parser, Subcommand};
 use flatbin_harness::evaluate::{evaluate_awgn, numerology_of, render_text};
+use flatbin_harness::evaluate_fading::{evaluate_fading, write_ber_plots};
 use flatbin_harness::scenario::{Scenario, DEFAULT_SCENARIO_ORIGIN, DEFAULT_SCENARIO_TOML};
 
 /// OFDM link checks for low-power radios: runs a scenario through the flatbin core.
@@ -49,6 +50,10 @@ struct EvaluateArgs {
     /// Print the report as JSON instead of a table.
     #[arg(long)]
     json: bool,
+    /// Also write the BER figures (measured beside theory; AWGN, and fading when the scenario
+    /// has a multipath channel) into this directory as SVG and PNG.
+    #[arg(long, value_name = "DIR")]
+    plots: Option<PathBuf>,
 }
 
 fn load(file: Option<&PathBuf>) -> Result<(Scenario, String, String)> {
@@ -74,17 +79,36 @@ fn run(cli: Cli) -> Result<ExitCode> {
             let (scenario, text, origin) = load(args.file.as_ref())?;
             let numerology = numerology_of(&scenario, &origin, &text)?;
             let report = evaluate_awgn(&scenario, &numerology)?;
+            let fading = evaluate_fading(&scenario, &numerology)?;
             if args.json {
-                println!("{}", serde_json::to_string_pretty(&report)?);
+                let both = serde_json::json!({ "awgn": &report, "fading": &fading });
+                println!("{}", serde_json::to_string_pretty(&both)?);
             } else {
                 print!("{}", render_text(&report));
+                if let Some(f) = &fading {
+                    print!("{}", flatbin_harness::evaluate_fading::render_text(f));
+                }
             }
-            Ok(if report.all_agree() {
-                ExitCode::SUCCESS
-            } else {
-                eprintln!("error: a measured BER disagrees with theory beyond ±4σ");
-                ExitCode::from(2)
-            })
+            if let Some(dir) = args.plots {
+                let files = write_ber_plots(&scenario, &report, fading.as_ref(), &dir)?;
+                let mut list = String::from("plots written:\n");
+                for f in &files {
+                    list.push_str(&format!("  {}\n", f.display()));
+                }
+                if args.json {
+                    eprint!("{list}");
+                } else {
+                    print!("{list}");
+                }
+            }
+            Ok(
+                if report.all_agree() && fading.as_ref().is_none_or(|f| f.all_agree()) {
+                    ExitCode::SUCCESS
+                } else {
+                    eprintln!("error: a measured BER disagrees with theory beyond ±4σ");
+                    ExitCode::from(2)
+                },
+            )
         }
         Command::Channel { file, json, plots } => {
             let (scenario, _, _) = load(file.as_ref())?;

@@ -477,11 +477,12 @@ fn measure_ici<const N: usize>(
 // ---------------------------------------------------------------------------------------------
 
 /// One axis: range, scale and label.
-struct Axis {
-    lo: f64,
-    hi: f64,
-    log: bool,
-    label: String,
+#[derive(Clone)]
+pub(crate) struct Axis {
+    pub(crate) lo: f64,
+    pub(crate) hi: f64,
+    pub(crate) log: bool,
+    pub(crate) label: String,
 }
 
 impl Axis {
@@ -528,29 +529,29 @@ impl Axis {
 
 /// How a curve is drawn.
 #[derive(Clone, Copy)]
-enum Mark {
+pub(crate) enum Mark {
     Line,
     Dashed,
     Points,
 }
 
 /// One curve of a chart.
-struct Curve {
-    label: String,
-    points: Vec<(f64, f64)>,
-    color: RGBColor,
-    mark: Mark,
+pub(crate) struct Curve {
+    pub(crate) label: String,
+    pub(crate) points: Vec<(f64, f64)>,
+    pub(crate) color: RGBColor,
+    pub(crate) mark: Mark,
     /// Vertical error bars `(x, low, high)` (points only).
-    bars: Vec<(f64, f64, f64)>,
+    pub(crate) bars: Vec<(f64, f64, f64)>,
 }
 
 /// A chart: title, axes, curves.
-struct Chart {
-    title: String,
-    x: Axis,
-    y: Axis,
-    curves: Vec<Curve>,
-    legend: SeriesLabelPosition,
+pub(crate) struct Chart {
+    pub(crate) title: String,
+    pub(crate) x: Axis,
+    pub(crate) y: Axis,
+    pub(crate) curves: Vec<Curve>,
+    pub(crate) legend: SeriesLabelPosition,
 }
 
 const SIMULATED: RGBColor = RGBColor(0, 90, 181);
@@ -574,20 +575,27 @@ pub fn render(data: &ChannelPlotData, dir: &Path) -> Result<Vec<PathBuf>> {
     charts.push(("ici_vs_fdt", ici_chart(data)));
     let mut files = Vec::new();
     for (stem, chart) in &charts {
-        let svg = dir.join(format!("{stem}.svg"));
-        {
-            let root = SVGBackend::new(&svg, SIZE).into_drawing_area();
-            draw(&root, chart).map_err(|e| anyhow!("drawing {}: {e}", svg.display()))?;
-        }
-        files.push(svg);
-        let png = dir.join(format!("{stem}.png"));
-        {
-            let root = BitMapBackend::new(&png, SIZE).into_drawing_area();
-            draw(&root, chart).map_err(|e| anyhow!("drawing {}: {e}", png.display()))?;
-        }
-        files.push(png);
+        files.extend(write_chart(stem, chart, dir)?);
     }
     Ok(files)
+}
+
+/// Writes `chart` as `<stem>.svg` and `<stem>.png` into `dir` (created if missing); returns the
+/// two paths. Shared by every report that draws.
+pub(crate) fn write_chart(stem: &str, chart: &Chart, dir: &Path) -> Result<Vec<PathBuf>> {
+    std::fs::create_dir_all(dir).with_context(|| format!("creating {}", dir.display()))?;
+    register_font()?;
+    let svg = dir.join(format!("{stem}.svg"));
+    {
+        let root = SVGBackend::new(&svg, SIZE).into_drawing_area();
+        draw(&root, chart).map_err(|e| anyhow!("drawing {}: {e}", svg.display()))?;
+    }
+    let png = dir.join(format!("{stem}.png"));
+    {
+        let root = BitMapBackend::new(&png, SIZE).into_drawing_area();
+        draw(&root, chart).map_err(|e| anyhow!("drawing {}: {e}", png.display()))?;
+    }
+    Ok(vec![svg, png])
 }
 
 /// Registers the bundled font once for the whole process.

@@ -1217,7 +1217,7 @@ mod tests {
         assert_eq!(s.link.es_n0_db[7], 28.0);
         assert_eq!(s.link.min_errors, 200);
         assert_eq!(s.link.max_bits, 2_000_000);
-        assert_eq!(s.channel.profile, ChannelProfile::Awgn);
+        assert_eq!(s.channel.profile, ChannelProfile::Exponential);
         assert_eq!(s.channel.max_speed_kmh, 120.0);
         assert_eq!(s.mcu.core, McuCore::CortexM4f);
         assert_eq!(s.mcu.cycles_per_instruction, 1.25);

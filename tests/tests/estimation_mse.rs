@@ -135,6 +135,7 @@ fn run(case: &Case) {
         held: true,
         symbols_per_frame: case.symbols_per_frame,
         mse_from_symbol: case.measure_from,
+        min_frames: 0,
     };
     let rx = ReceiverConfig {
         estimator: cfg,
@@ -271,6 +272,7 @@ fn ls_at_the_pilots_has_mse_n0_over_pilot_power() {
         held: true,
         symbols_per_frame: 1,
         mse_from_symbol: 0,
+        min_frames: 0,
     };
     let frames = 4000u64;
     let stop = StopRule {

@@ -29,6 +29,7 @@ fn ideal_csi_multipath_ber_matches_flat_rayleigh() {
         held: true,
         symbols_per_frame: 1,
         mse_from_symbol: 0,
+        min_frames: 0,
     };
     // The profile fits the CP: no ISI, so each bin is exactly flat Rayleigh.
     assert!(channel.taps.iter().all(|t| t.0 <= nu.cp_len()));
@@ -157,6 +158,7 @@ fn estimator_snr_loss_matches_the_analytic_mse_prediction() {
                 held: false,
                 symbols_per_frame: 10,
                 mse_from_symbol: 0,
+                min_frames: 0,
             };
             let stop = StopRule {
                 min_errors: u64::MAX,

@@ -68,6 +68,39 @@ fn default_scenario_runs_and_agrees_with_theory() {
         .filter(|r| r.verdict == Verdict::Agrees)
         .count();
     assert!(judged >= 20, "only {judged} points reached a verdict");
+    // The default channel is multipath Rayleigh: ideal-CSI points agree with the flat-Rayleigh
+    // closed form (Proakis & Salehi ch. 13; Cho & Yoon 2002 averaged over Rayleigh) within
+    // ±4·s/√frames, and the pilot estimator's points are never better than ideal knowledge
+    // by more than that tolerance (an estimate cannot beat the truth; common practice).
+    let fading = flatbin_harness::evaluate_fading::evaluate_fading(&scenario, &nu)
+        .unwrap()
+        .expect("the default scenario fades");
+    assert!(fading.all_agree());
+    let judged = fading
+        .rows
+        .iter()
+        .filter(|r| r.verdict == Verdict::Agrees)
+        .count();
+    assert!(
+        judged >= 20,
+        "only {judged} fading points reached a verdict"
+    );
+    for r in &fading.rows {
+        if let (Some(e), Some(i)) = (r.estimated, r.ideal) {
+            assert!(e.ber + e.tolerance + i.tolerance >= r.theory_ideal, "{r:?}");
+        }
+    }
+    // The BER figures are written, SVG and PNG.
+    let dir = std::env::temp_dir().join(format!("flatbin-ber-plots-{}", std::process::id()));
+    let files =
+        flatbin_harness::evaluate_fading::write_ber_plots(&scenario, &report, Some(&fading), &dir)
+            .unwrap();
+    assert_eq!(files.len(), 4);
+    for f in &files {
+        let bytes = std::fs::read(f).unwrap();
+        assert!(bytes.len() > 1000, "{}", f.display());
+    }
+    std::fs::remove_dir_all(&dir).unwrap();
 }
 
 #[test]
