@@ -295,3 +295,57 @@ fn ls_at_the_pilots_has_mse_n0_over_pilot_power() {
     println!("LS MSE at pilots: {measured:.5}, N0/|Xp|² = {want:.5}");
     assert!((measured / want - 1.0).abs() <= 4.0 / samples.sqrt());
 }
+
+#[test]
+fn exponential_forgetting_settles_at_its_noise_reduction() {
+    // An exponentially weighted average Ĥ ← λĤ + (1 − λ)Z of independent LS values of variance
+    // σ² has steady-state noise variance σ²(1 − λ)/(1 + λ) (exponential smoothing, common
+    // practice); on a practically static channel that is the MSE at the pilot bins.
+    let nu = Numerology::new(NumerologyParams::default()).unwrap();
+    let fs = f64::from(nu.sample_rate_hz());
+    let taps = DelayProfile::exponential(1.0 / fs, fs)
+        .unwrap()
+        .to_sample_taps(fs, Quantisation::Nearest);
+    let lambda = 0.8f32;
+    let n0 = 0.1;
+    let rx = ReceiverConfig {
+        estimator: EstimatorConfig {
+            freq: FreqInterpolation::Linear,
+            time: TimeFilter::Forgetting { lambda },
+            model: ChannelModel::default(),
+            noise_var: n0 as f32,
+        },
+        equalizer: Equalizer::Zf,
+        cpe: false,
+    };
+    let channel = FadingChannel {
+        taps,
+        doppler_hz: 0.001,
+        held: true,
+        symbols_per_frame: 60,
+        mse_from_symbol: 40,
+        min_frames: 0,
+    };
+    let frames = 300u64;
+    let stop = StopRule {
+        min_errors: u64::MAX,
+        max_bits: frames * 60 * (nu.data_len(0) * 2) as u64,
+    };
+    let r = fading_errors(
+        &nu,
+        Modulation::Qpsk,
+        10.0,
+        &channel,
+        Csi::Estimated(rx),
+        &mut stream_rng(73, 0),
+        stop,
+    )
+    .unwrap();
+    let l = f64::from(lambda);
+    let want = n0 * (1.0 - l) / (1.0 + l);
+    let measured = r.mse_pilots.unwrap();
+    // Samples: 300 frames × 20 steady symbols × 15 pilots, correlated over ~1/(1 − λ²) ≈ 3
+    // symbols: ≈ 30 000 effective; 4/√(30 000/3) ≈ 4 %, so ±6 % is safe.
+    println!("forgetting λ = {lambda}: pilot MSE {measured:.5}, σ²(1−λ)/(1+λ) = {want:.5}");
+    assert!((measured / want - 1.0).abs() <= 0.06);
+}

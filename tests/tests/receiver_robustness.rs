@@ -132,3 +132,60 @@ fn faded_bins_give_quiet_llrs_and_nothing_is_ever_non_finite() {
         }
     }
 }
+
+#[test]
+fn common_phase_error_is_removed_from_pilots() {
+    // A common rotation of a whole symbol (what phase noise's CPE does) against a held channel
+    // estimate: with CPE correction the equalized symbols come back on the constellation; without
+    // it they stay rotated (definition of the CPE; common practice).
+    let nu = Numerology::new(NumerologyParams::default()).unwrap();
+    let m = Modulation::Qpsk;
+    let k = m.bits_per_symbol();
+    let tx = Transmitter::new(nu, MicroFft::<N>::new()).unwrap();
+    let d = nu.data_len(0);
+    for cpe in [true, false] {
+        let cfg = ReceiverConfig {
+            estimator: EstimatorConfig {
+                time: TimeFilter::Forgetting { lambda: 0.9 },
+                noise_var: 1e-4,
+                ..EstimatorConfig::default()
+            },
+            equalizer: Equalizer::Mmse,
+            cpe,
+        };
+        let mut rx = Receiver::<MicroFft<N>, N, 4, 4>::new(&nu, MicroFft::<N>::new(), cfg).unwrap();
+        let (mut x, mut s, mut l) = (
+            vec![Cf32::default(); d],
+            vec![0.0f32; d],
+            vec![0.0f32; d * k],
+        );
+        let mut worst = 0.0f32;
+        for sym in 0..6u32 {
+            let bits: Vec<u8> = (0..tx.bits_per_ofdm_symbol(m, sym))
+                .map(|i| ((i + sym as usize) % 2) as u8)
+                .collect();
+            let mut grid = [Cf32::default(); N];
+            tx.map_grid(m, &bits, sym, &mut grid).unwrap();
+            // Symbols 0..3 unrotated (the estimate settles), then a 25° common rotation.
+            let rot = if sym >= 4 {
+                Cf32::from_polar(1.0, 25f32.to_radians())
+            } else {
+                Cf32::new(1.0, 0.0)
+            };
+            let bins = grid.map(|v| v * rot);
+            rx.receive_bins(&bins, sym, m, &mut x, &mut s, &mut l)
+                .unwrap();
+            if sym >= 4 {
+                for (xi, chunk) in x.iter().zip(bits.chunks_exact(k)) {
+                    worst = worst.max((xi - m.map(chunk).unwrap()).norm());
+                }
+            }
+        }
+        if cpe {
+            assert!(worst < 0.05, "with CPE correction: error {worst}");
+        } else {
+            // |e^{j25°} − 1| = 0.433 of a unit-energy symbol, less the forgetting's pull.
+            assert!(worst > 0.2, "without CPE correction: error {worst}");
+        }
+    }
+}
