@@ -80,6 +80,7 @@ pub mod estimate;
 pub mod fft;
 pub mod fft_q15;
 pub mod fixed;
+pub mod fixed_math;
 pub mod front;
 pub mod linalg;
 pub mod modulation;
@@ -87,6 +88,7 @@ pub mod numerology;
 pub mod packed;
 pub mod pilots;
 pub mod receiver;
+pub mod receiver_q15;
 pub mod transmit;
 pub mod transmit_q15;
 

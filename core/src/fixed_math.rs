@@ -1,0 +1,154 @@
+//! Integer helpers of the Q15 receiver: rounding shifts, a reciprocal and an inverse square
+//! root by normalisation and Newton steps (no division instruction), and a block-exponent
+//! number ([`Scaled`]) for per-bin factors designed in floating point.
+//!
+//! Everything here is exact integer arithmetic, so the host and every core compute the same
+//! bits.
+
+/// `v · 2^-s` rounded to nearest (ties away from zero for `s > 0`); `s ≤ 0` shifts left,
+/// saturating to the `i64` range.
+#[inline]
+pub fn shift_round(v: i64, s: i32) -> i64 {
+    if s > 0 {
+        if s >= 63 {
+            return 0;
+        }
+        let half = 1i64 << (s - 1);
+        if v >= 0 {
+            (v + half) >> s
+        } else {
+            -((-v + half) >> s)
+        }
+    } else if s == 0 {
+        v
+    } else {
+        let l = (-s).min(62) as u32;
+        v.checked_shl(l)
+            .filter(|r| r >> l == v)
+            .unwrap_or(if v >= 0 { i64::MAX } else { i64::MIN })
+    }
+}
+
+/// Saturates an `i64` to `i16`.
+#[inline]
+pub fn sat16_64(v: i64) -> i16 {
+    v.clamp(i64::from(i16::MIN), i64::from(i16::MAX)) as i16
+}
+
+/// Saturates an `i64` to `i32`.
+#[inline]
+pub fn sat32_64(v: i64) -> i32 {
+    v.clamp(i64::from(i32::MIN), i64::from(i32::MAX)) as i32
+}
+
+/// Reciprocal of `x > 0`: returns `(r, s)` with `1/x = r · 2^(s − 30)`, `r` in `[2^30, 2^31]`
+/// (Q30 in `(1, 2]`), `s` the normalisation shift. `x` is normalised to `m = x·2^s ∈ [2^31,
+/// 2^32)`, read as `μ = m/2^32 ∈ [1/2, 1)`; the reciprocal of `μ` starts from the linear seed
+/// `48/17 − 32/17·μ` (maximum relative error 1/17) and takes three Newton steps
+/// `r ← r(2 − μr)`, each squaring the error: better than 2^-30 relative (standard
+/// Newton–Raphson division; common practice). Returns `None` for `x = 0`.
+pub fn reciprocal(x: u32) -> Option<(i64, i32)> {
+    if x == 0 {
+        return None;
+    }
+    let s = x.leading_zeros() as i32;
+    let m = i64::from(x << s); // μ·2^32, in [2^31, 2^32)
+                               // Seed in Q30: 48/17·2^30 − 32/17·μ·2^30.
+    let mut r: i64 = 3_031_741_620 - ((2_021_161_080 * (m >> 16)) >> 16);
+    for _ in 0..3 {
+        // e = 2 − μr in Q30: μr = m·r·2^-32 (Q30).
+        let mr = (m * r) >> 32;
+        let e = (2i64 << 30) - mr;
+        r = (r * e) >> 30;
+    }
+    // 1/x = 1/(μ·2^(32−s)) = r·2^-30·2^(s−32).
+    Some((r, s - 32))
+}
+
+/// Inverse square root of `x > 0`: returns `(r, s)` with `1/sqrt(x) = r · 2^(s − 30)`.
+/// Normalises `x` to `μ ∈ [1/4, 1)` by an even shift, seeds `r` linearly and takes four
+/// Newton steps `r ← r(3 − μr²)/2` (common practice). `None` for `x = 0`.
+pub fn inv_sqrt(x: u64) -> Option<(i64, i32)> {
+    if x == 0 {
+        return None;
+    }
+    let lz = x.leading_zeros() as i32;
+    let s = lz & !1; // even shift: μ = x·2^s / 2^64 in [1/4, 1)
+    let m = (x << s) >> 34; // μ in Q30
+    let m = m as i64;
+    // Seed: 1/sqrt(μ) ≈ 2.2 − 1.33μ on [1/4, 1) (within 12 %), Q30.
+    let mut r: i64 = 2_362_232_013 - ((1_428_076_625 * m) >> 30);
+    for _ in 0..4 {
+        let r2 = (r * r) >> 30; // Q30
+        let mr2 = (m * r2) >> 30; // Q30
+        r = (r * ((3i64 << 30) - mr2)) >> 31;
+    }
+    // 1/sqrt(x) = 1/sqrt(μ·2^(64−s)) = r·2^-30·2^((s−64)/2).
+    Some((r, (s - 64) / 2))
+}
+
+/// A positive factor as mantissa and exponent: value `mant · 2^(exp − 15)`, `mant` in
+/// `[2^14, 2^15)` (zero: `mant = 0`). Designed in floating point at configuration time and
+/// applied in integers.
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct Scaled {
+    /// Mantissa, Q15.
+    pub mant: i32,
+    /// Binary exponent.
+    pub exp: i32,
+}
+
+impl Scaled {
+    /// The nearest `Scaled` of a finite, non-negative `v` (zero or invalid: zero).
+    pub fn from_f64(v: f64) -> Self {
+        if !(v.is_finite() && v > 0.0) {
+            return Self { mant: 0, exp: 0 };
+        }
+        let mut exp = 0i32;
+        let mut m = v;
+        while m >= 1.0 {
+            m *= 0.5;
+            exp += 1;
+        }
+        while m < 0.5 {
+            m *= 2.0;
+            exp -= 1;
+        }
+        let mut mant = (m * 32768.0 + 0.5) as i32;
+        if mant >= 32768 {
+            mant >>= 1;
+            exp += 1;
+        }
+        Self { mant, exp }
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    #[test]
+    fn reciprocal_and_inverse_root_are_accurate() {
+        // Against f64 division and sqrt (IEEE 754, correctly rounded).
+        for x in [1u32, 2, 3, 7, 1000, 65_535, 1 << 20, 123_456_789, u32::MAX] {
+            let (r, s) = reciprocal(x).unwrap();
+            let got = r as f64 * 2f64.powi(s - 30);
+            assert!((got * x as f64 - 1.0).abs() < 4e-9, "1/{x}: {got}");
+        }
+        for x in [1u64, 2, 5, 1 << 33, 987_654_321_012, u64::MAX] {
+            let (r, s) = inv_sqrt(x).unwrap();
+            let got = r as f64 * 2f64.powi(s - 30);
+            assert!(
+                (got * (x as f64).sqrt() - 1.0).abs() < 4e-9,
+                "1/sqrt {x}: {got}"
+            );
+        }
+        assert_eq!(reciprocal(0), None);
+        assert_eq!(shift_round(5, 1), 3);
+        assert_eq!(shift_round(-5, 1), -3);
+        assert_eq!(shift_round(3, -2), 12);
+        let s = Scaled::from_f64(0.3);
+        assert!((f64::from(s.mant) * 2f64.powi(s.exp - 15) - 0.3).abs() < 1e-4);
+    }
+}
