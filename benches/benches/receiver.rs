@@ -1,7 +1,8 @@
 //! Per-symbol cost of channel estimation + equalization + demapping (the f32 receiver after
 //! the FFT) for N = 64, 256, 1024, with K = 4 frequency taps, for linear and LMMSE frequency
-//! interpolation and for the 2-D (time LMMSE, M = 4) estimator; and the whole symbol including
-//! the FFT. Host figures; target costs are instruction counts (`cargo xtask mcu`).
+//! interpolation and for the 2-D (time LMMSE, M = 4) estimator; the whole symbol including
+//! the FFT; and the whole Q15 symbol. Host figures; target costs are instruction counts
+//! (`cargo xtask mcu`).
 
 use std::hint::black_box;
 
@@ -78,6 +79,30 @@ fn bench_n<const N: usize>(c: &mut Criterion) {
                 b.iter(|| black_box(rx.receive(black_box(&input), 0, m, &mut x, &mut s, &mut l)))
             });
         }
+    }
+    // The Q15 receiver, whole symbol (gain, Q15 FFT, estimation, equalization, i8 LLRs).
+    {
+        use flatbin::fft_q15::Q15Fft;
+        use flatbin::fixed::Cq15;
+        use flatbin::fixed_math::Scaled;
+        use flatbin::receiver_q15::{DesignQ15, ReceiverQ15, ReceiverQ15Config};
+        let cfg = ReceiverQ15Config::default();
+        let design =
+            DesignQ15::<N, 4, 4>::new(&nu, &cfg, <Q15Fft<N> as OfdmFft<N>>::RESIDUAL_SCALE)
+                .expect("valid design");
+        let mut rx = Box::new(
+            ReceiverQ15::<Q15Fft<N>, N, 4, 4>::new(&nu, Q15Fft::new(), design)
+                .expect("valid receiver"),
+        );
+        let q: Vec<Cq15> = input.iter().map(|v| Cq15::from_cf32(*v * 0.25)).collect();
+        let (mut x, mut s, mut l) = (
+            vec![Cq15::ZERO; d],
+            vec![Scaled::default(); d],
+            vec![0i8; d * m.bits_per_symbol()],
+        );
+        group.bench_function(BenchmarkId::new("whole_symbol_q15", N), |b| {
+            b.iter(|| black_box(rx.receive(black_box(&q), 0, m, &mut x, &mut s, &mut l)))
+        });
     }
     group.finish();
 }
