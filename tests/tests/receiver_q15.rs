@@ -21,11 +21,19 @@ use flatbin_harness::rng::stream_rng;
 use rand::RngExt;
 
 fn numerology(n: usize) -> Numerology {
+    numerology_shift(n, 0)
+}
+
+fn numerology_shift(n: usize, shift: usize) -> Numerology {
     Numerology::new(NumerologyParams {
         fft_len: n,
         cp_len: n / 8,
         guard_low_bins: n / 16,
         guard_high_bins: n / 16 - 1,
+        pilots: flatbin::PilotParams {
+            shift_per_symbol: shift,
+            ..flatbin::PilotParams::default()
+        },
         ..NumerologyParams::default()
     })
     .unwrap()
@@ -33,12 +41,32 @@ fn numerology(n: usize) -> Numerology {
 
 /// Returns the implementation-noise-to-thermal-noise ratio, dB, at FFT input `level_dbfs`.
 fn compare<const N: usize>(m: Modulation, es_n0_db: f64, level_dbfs: f64, seed: u64) -> f64 {
-    let nu = numerology(N);
+    compare_with::<N>(
+        m,
+        es_n0_db,
+        level_dbfs,
+        seed,
+        FreqInterpolation::Lmmse,
+        TimeFilter::Latest,
+        0,
+    )
+}
+
+fn compare_with<const N: usize>(
+    m: Modulation,
+    es_n0_db: f64,
+    level_dbfs: f64,
+    seed: u64,
+    freq: FreqInterpolation,
+    time: TimeFilter,
+    shift: usize,
+) -> f64 {
+    let nu = numerology_shift(N, shift);
     let fs = f64::from(nu.sample_rate_hz());
     let n0 = 10f64.powf(-es_n0_db / 10.0);
     let est = EstimatorConfig {
-        freq: FreqInterpolation::Lmmse,
-        time: TimeFilter::Latest,
+        freq,
+        time,
         noise_var: n0 as f32,
         ..EstimatorConfig::default()
     };
@@ -126,6 +154,33 @@ fn compare<const N: usize>(m: Modulation, es_n0_db: f64, level_dbfs: f64, seed: 
         rx_q.reset();
     }
     10.0 * (diff / count as f64 / n0).log10()
+}
+
+#[test]
+fn every_q15_stage_variant_stays_12_db_below_the_noise() {
+    // Linear interpolation, exponential forgetting, and the 2-D (time LMMSE on a scattered
+    // pattern) estimator, at the extremes of the level range; same criterion as below.
+    for (name, freq, time, shift) in [
+        ("linear", FreqInterpolation::Linear, TimeFilter::Latest, 0),
+        (
+            "forgetting 0.5",
+            FreqInterpolation::Lmmse,
+            TimeFilter::Forgetting { lambda: 0.5 },
+            0,
+        ),
+        (
+            "2-D scattered",
+            FreqInterpolation::Lmmse,
+            TimeFilter::Lmmse,
+            1,
+        ),
+    ] {
+        for level in [-40.0, -3.0] {
+            let r = compare_with::<64>(Modulation::Qam16, 22.0, level, 3, freq, time, shift);
+            println!("{name}, 16-QAM 22 dB, {level} dBFS: implementation noise {r:.1} dB re N0");
+            assert!(r <= -12.0, "{name} at {level} dBFS: {r:.1} dB");
+        }
+    }
 }
 
 #[test]
