@@ -87,6 +87,7 @@ pub mod modulation;
 pub mod numerology;
 pub mod packed;
 pub mod pilots;
+pub mod preamble;
 pub mod receiver;
 pub mod receiver_q15;
 pub mod transmit;
