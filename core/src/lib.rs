@@ -72,6 +72,7 @@
     )
 )]
 
+pub mod acquire;
 pub mod correlation;
 pub mod demap;
 pub mod equalize;
