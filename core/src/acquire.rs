@@ -162,7 +162,7 @@ impl<const N: usize> Acquirer<N> {
                 *slot = x;
             }
             self.seen += 1;
-            if self.seen % REFRESH == 0 {
+            if self.seen.is_multiple_of(REFRESH) {
                 self.recompute();
             }
             if self.seen < 2 * l {

@@ -156,7 +156,9 @@ mod tests {
         assert!((0..32).any(|m| (b[m] - b[m + 32]).norm() > 0.1));
         // Power equal to a data symbol's (used bins, unit energy): Σ|a|² = used_len (unitary).
         let pa: f32 = a.iter().map(|v| v.norm_sqr()).sum();
-        let even = (0..nu.used_len()).filter(|&u| nu.logical_bin(u) % 2 == 0).count() as f32;
+        let even = (0..nu.used_len())
+            .filter(|&u| nu.logical_bin(u) % 2 == 0)
+            .count() as f32;
         assert!((pa - 2.0 * even).abs() < 1e-3);
         assert_eq!(preamble_bin(&nu, PreambleSymbol::B, 3).norm(), 1.0);
     }
