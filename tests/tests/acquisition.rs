@@ -109,7 +109,11 @@ fn cfo_estimate_matches_the_gaussian_sample_variance() {
         let trials = 10_000;
         for _ in 0..trials {
             let (mut s, start) = frame::<N>(&nu, 100, 150);
-            frequency_offset(&mut s, 0.2 / N as f64, rng.random_range(0.0..6.28));
+            frequency_offset(
+                &mut s,
+                0.2 / N as f64,
+                rng.random_range(0.0..std::f64::consts::TAU),
+            );
             add_awgn(&mut rng, &mut s, p_a / snr);
             let mut acq = Acquirer::<N>::new(&nu, t).unwrap();
             // The variance form presumes correct timing: count the estimates of frames whose
@@ -143,7 +147,11 @@ fn integer_cfo_is_resolved_by_symbol_b() {
     for eps in [-3.7f64, -1.2, 0.45, 2.3, 5.1] {
         for _ in 0..20 {
             let (mut s, _) = frame::<N>(&nu, 120, 100);
-            frequency_offset(&mut s, eps / N as f64, rng.random_range(0.0..6.28));
+            frequency_offset(
+                &mut s,
+                eps / N as f64,
+                rng.random_range(0.0..std::f64::consts::TAU),
+            );
             add_awgn(&mut rng, &mut s, 0.1);
             let mut acq = Acquirer::<N>::new(&nu, t).unwrap();
             let d = acquire(&mut acq, &s, &mut rng).expect("detected");
@@ -173,7 +181,6 @@ fn false_alarms_on_noise_alone_stay_below_1e_5_per_symbol() {
     let alarms: u64 = std::thread::scope(|sc| {
         let hs: Vec<_> = (0..2u64)
             .map(|th| {
-                let nu = nu;
                 sc.spawn(move || {
                     let mut acq = Acquirer::<N>::new(&nu, t).unwrap();
                     let mut rng = stream_rng(94, th);
