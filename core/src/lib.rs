@@ -74,6 +74,7 @@
 
 pub mod acquire;
 pub mod correlation;
+pub mod cp_sync;
 pub mod demap;
 pub mod equalize;
 pub mod error;
