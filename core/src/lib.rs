@@ -92,6 +92,7 @@ pub mod pilots;
 pub mod preamble;
 pub mod receiver;
 pub mod receiver_q15;
+pub mod sco;
 pub mod transmit;
 pub mod transmit_q15;
 
