@@ -307,3 +307,37 @@ pub fn total_cfo<F: OfdmFft<N, Sample = Cf32>, const N: usize>(
     }
     best.1 as f32 + cfo_fraction
 }
+
+/// Fine timing from preamble symbol B: the offset, in samples, from symbol B's FFT window
+/// start (`window_b`, CFO already removed) to the channel's first path, found in the
+/// impulse response `IFFT(Y_k B_k*)` as the earliest lag in `[−N/4, N/4)` whose power reaches
+/// `first_path_fraction` of the strongest (e.g. 0.1). Moving the FFT windows by this offset
+/// (minus a sample or two of margin) puts the first path at the start of the channel, where
+/// the estimator's delay-profile model begins. Returns 0 when the window holds no power.
+pub fn first_path_offset<F: OfdmFft<N, Sample = Cf32>, const N: usize>(
+    numerology: &Numerology,
+    fft: &mut F,
+    window_b: &[Cf32; N],
+    first_path_fraction: f32,
+) -> i32 {
+    let mut y = *window_b;
+    fft.forward(&mut y);
+    let mut grid = [Cf32::new(0.0, 0.0); N];
+    preamble_grid(numerology, PreambleSymbol::B, &mut grid);
+    for (v, b) in y.iter_mut().zip(grid.iter()) {
+        *v *= b.conj();
+    }
+    fft.inverse(&mut y);
+    let q = (N / 4) as i32;
+    let power = |lag: i32| {
+        y.get(lag.rem_euclid(N as i32) as usize)
+            .map_or(0.0, |v| v.norm_sqr())
+    };
+    let peak = (-q..q).map(power).fold(0.0f32, f32::max);
+    if peak <= 0.0 {
+        return 0;
+    }
+    (-q..q)
+        .find(|&lag| power(lag) >= first_path_fraction * peak)
+        .unwrap_or(0)
+}
