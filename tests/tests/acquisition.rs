@@ -298,3 +298,46 @@ fn integer_acquisition_matches_the_f32_statistics() {
     assert!(good as f64 >= 0.99 * frames as f64);
     assert!(rms < 0.002);
 }
+
+#[test]
+fn noise_zeros_and_clipped_streams_never_panic_or_produce_non_finite_values() {
+    // Robustness (no source needed: a property of the implementation): silence, full-scale
+    // clipped squares and NaN for the f32 path; extremes for the integer path.
+    use flatbin::acquire_q15::AcquirerQ15;
+    use flatbin::cp_sync::CpTracker;
+    use flatbin::fixed::Cq15;
+    const N: usize = 64;
+    let nu = numerology(N);
+    let t = Acquirer::<N>::threshold_for(&nu, 1e-5);
+    let mut acq = Acquirer::<N>::new(&nu, t).unwrap();
+    let zeros = vec![Cf32::default(); 5000];
+    assert_eq!(acq.push(&zeros).unwrap(), None);
+    let clipped: Vec<Cf32> = (0..5000)
+        .map(|i| {
+            Cf32::new(
+                if i % 3 == 0 { 1.0 } else { -1.0 },
+                if i % 5 < 2 { 1.0 } else { -1.0 },
+            )
+        })
+        .collect();
+    if let Some(d) = acq.push(&clipped).unwrap() {
+        assert!(d.cfo_fraction.is_finite() && d.metric.is_finite());
+    }
+    let mut bad = clipped.clone();
+    bad[17] = Cf32::new(f32::NAN, 0.0);
+    assert_eq!(
+        acq.push(&bad),
+        Err(flatbin::ProcessError::NonFinite { index: 17 })
+    );
+    let mut q = AcquirerQ15::<N>::new(&nu, (t * 65536.0) as u32).unwrap();
+    assert_eq!(q.push(&vec![Cq15::ZERO; 5000]).unwrap(), None);
+    let full: Vec<Cq15> = (0..5000)
+        .map(|i| Cq15::new(if i % 2 == 0 { i16::MAX } else { i16::MIN }, i16::MIN))
+        .collect();
+    let _ = q.push(&full).unwrap();
+    let mut tr = CpTracker::<N, 72>::new(&nu, 10.0).unwrap();
+    tr.push(&zeros);
+    tr.push(&bad);
+    let e = tr.estimate();
+    assert!(e.cfo.is_finite());
+}
