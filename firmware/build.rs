@@ -1,6 +1,20 @@
-//! Picks the memory layout for the target board and tells the firmware which core it runs on.
+//! Picks the memory layout for the target board and tells the firmware which core it runs on,
+//! and writes the Q15 receiver designs as `static` tables (`$OUT_DIR/rx_designs.rs`).
+//!
+//! The designs are computed here, on the host, by `DesignQ15::new` (floating point, f64
+//! Cholesky) for the settings in `vectors_gen::rx`, so the firmware gets integers only and a
+//! Cortex-M0 build runs the receiver without any floating point.
 
+use std::fmt::Write as _;
 use std::{env, fs, path::PathBuf};
+
+use flatbin::estimate::TimeFilter;
+use flatbin::fft::OfdmFft;
+use flatbin::fft_q15::Q15Fft;
+use flatbin::fixed_math::Scaled;
+use flatbin::receiver_q15::DesignQ15;
+use flatbin::Numerology;
+use vectors_gen::rx::{numerology_params, receiver_config, RX_DESIGNS, RX_K, RX_M};
 
 fn main() {
     let target = env::var("TARGET").unwrap_or_default();
@@ -17,6 +31,105 @@ fn main() {
     if core == "cortex-m0" {
         println!("cargo::rustc-cfg=core_m0");
     }
+
+    let mut src = String::from(
+        "// Written by firmware/build.rs: Q15 receiver designs computed on the host by\n\
+         // DesignQ15::new for the settings in vectors_gen::rx::RX_DESIGNS.\n",
+    );
+    designs::<64>(&mut src);
+    designs::<256>(&mut src);
+    fs::write(out.join("rx_designs.rs"), src).expect("write rx_designs.rs");
+
     println!("cargo::rerun-if-changed=memory");
     println!("cargo::rerun-if-changed=build.rs");
+}
+
+/// Appends the designs at size `N` and their `RxDesigns<N>` implementation.
+fn designs<const N: usize>(src: &mut String) {
+    let nu = Numerology::new(numerology_params(N)).expect("numerology of the receiver checks");
+    let residual = <Q15Fft<N> as OfdmFft<N>>::RESIDUAL_SCALE;
+    let mut names = Vec::new();
+    for spec in &RX_DESIGNS {
+        let d = Box::new(
+            DesignQ15::<N, RX_K, RX_M>::new(&nu, &receiver_config(spec), residual)
+                .expect("receiver design"),
+        );
+        let name = format!("RX_DESIGN_{}_{N}", spec.label);
+        let _ = writeln!(
+            src,
+            "/// Design `{}` at N = {N} (see `vectors_gen::rx::RX_DESIGNS`).\n\
+             pub static {name}: DesignQ15<{N}, {RX_K}, {RX_M}> = {};",
+            spec.label,
+            literal(&d)
+        );
+        names.push(name);
+    }
+    let _ = writeln!(
+        src,
+        "impl RxDesigns<{N}> for Tables {{\n    fn design(index: usize) -> \
+         Option<&'static DesignQ15<{N}, {RX_K}, {RX_M}>> {{\n        match index {{"
+    );
+    for (i, name) in names.iter().enumerate() {
+        let _ = writeln!(src, "            {i} => Some(&{name}),");
+    }
+    let _ = writeln!(src, "            _ => None,\n        }}\n    }}\n}}");
+}
+
+fn list<T>(items: impl IntoIterator<Item = T>, f: impl Fn(T) -> String) -> String {
+    let v: Vec<String> = items.into_iter().map(f).collect();
+    format!("[{}]", v.join(", "))
+}
+
+fn scaled(s: &Scaled) -> String {
+    format!("Scaled {{ mant: {}, exp: {} }}", s.mant, s.exp)
+}
+
+/// The design as a Rust constant expression.
+fn literal<const N: usize, const K: usize, const M: usize>(d: &DesignQ15<N, K, M>) -> String {
+    let time = match d.time {
+        TimeFilter::Latest => "TimeFilter::Latest".to_string(),
+        TimeFilter::Lmmse => "TimeFilter::Lmmse".to_string(),
+        TimeFilter::Forgetting { lambda } => format!(
+            "TimeFilter::Forgetting {{ lambda: f32::from_bits({:#010x}) }}",
+            lambda.to_bits()
+        ),
+    };
+    let mut s = String::from("DesignQ15 {\n");
+    let _ = writeln!(s, "    lattice: {},", list(d.lattice, |v| v.to_string()));
+    let _ = writeln!(s, "    lattice_len: {},", d.lattice_len);
+    let _ = writeln!(
+        s,
+        "    lattice_of: {},",
+        list(d.lattice_of, |v| v.to_string())
+    );
+    let _ = writeln!(
+        s,
+        "    every_symbol: {},",
+        list(d.every_symbol, |v| v.to_string())
+    );
+    let _ = writeln!(
+        s,
+        "    taps: {},",
+        list(&d.taps, |row| list(row, |(a, b)| format!("({a}, {b})")))
+    );
+    let _ = writeln!(
+        s,
+        "    first_tap: {},",
+        list(d.first_tap, |v| v.to_string())
+    );
+    let _ = writeln!(
+        s,
+        "    time_weights: {},",
+        list(&d.time_weights, |c| list(c, |a| list(a, |f| list(
+            f,
+            |w| w.to_string()
+        ))))
+    );
+    let _ = writeln!(s, "    time: {time},");
+    let _ = writeln!(s, "    lambda_q15: {},", d.lambda_q15);
+    let _ = writeln!(s, "    inv_pilot: {},", scaled(&d.inv_pilot));
+    let _ = writeln!(s, "    weight: {},", list(&d.weight, scaled));
+    let _ = writeln!(s, "    cpe: {},", d.cpe);
+    s.push('}');
+    s
 }

@@ -63,17 +63,54 @@ static mut REGIONS: u32 = 0;
 pub fn measure(stage: &mut dyn FnMut()) -> Measured {
     let stage = core::hint::black_box(stage);
     let sp = cortex_m::register::msp::read() as usize;
+    paint(sp);
+    probe_start();
+    stage();
+    probe_stop();
+    finish(sp, 1)
+}
+
+/// As [`measure`], for a stage that itself ends the region and starts a new one
+/// `regions − 1` times (`probe_stop(); probe_start();`), so the plugin reports `regions`
+/// consecutive regions; the result names the first. The stack figure covers all of them.
+#[inline(never)]
+pub fn measure_split(stage: &mut dyn FnMut(), regions: u32) -> Measured {
+    let stage = core::hint::black_box(stage);
+    let sp = cortex_m::register::msp::read() as usize;
+    paint(sp);
+    probe_start();
+    stage();
+    probe_stop();
+    finish(sp, regions)
+}
+
+/// Peak stack of `stage` as in [`measure`], outside any counted region (no markers).
+#[inline(never)]
+pub fn stack_peak(stage: &mut dyn FnMut()) -> Measured {
+    let stage = core::hint::black_box(stage);
+    let sp = cortex_m::register::msp::read() as usize;
+    paint(sp);
+    stage();
+    finish(sp, 0)
+}
+
+/// Paints the free stack `[_stack_end, sp)`.
+#[inline(always)]
+fn paint(sp: usize) {
     let bottom = addr_of!(_stack_end) as usize;
     let mut p = bottom;
     while p + 4 <= sp {
         // SAFETY: [bottom, sp) is the free part of the stack: nothing lives there while
-        // interrupts are off, and this function's own frame is above `sp`.
+        // interrupts are off, and the caller's own frame is above `sp`.
         unsafe { write_volatile(p as *mut u32, PAINT) };
         p += 4;
     }
-    probe_start();
-    stage();
-    probe_stop();
+}
+
+/// Scans the painted stack below `sp` and counts `regions` more regions.
+#[inline(always)]
+fn finish(sp: usize, regions: u32) -> Measured {
+    let bottom = addr_of!(_stack_end) as usize;
     let mut low = bottom;
     // SAFETY: reads of the same free stack area.
     while low + 4 <= sp && unsafe { read_volatile(low as *const u32) } == PAINT {
@@ -82,7 +119,7 @@ pub fn measure(stage: &mut dyn FnMut()) -> Measured {
     // SAFETY: single core, interrupts off.
     let region = unsafe {
         let r = read_volatile(addr_of!(REGIONS));
-        write_volatile(addr_of_mut!(REGIONS), r + 1);
+        write_volatile(addr_of_mut!(REGIONS), r + regions);
         r
     };
     Measured {
@@ -129,4 +166,60 @@ pub fn fill<T>(case_index: usize, out: &mut [T], mut put: impl FnMut(&mut T, i16
 pub fn prefix<T, const N: usize>(buf: &mut [T]) -> Option<&mut [T; N]> {
     buf.get_mut(..N)
         .and_then(|s| <&mut [T; N]>::try_from(s).ok())
+}
+
+/// The Q15 receiver designs written by `build.rs` (computed on the host by
+/// `DesignQ15::new`), as `static` tables: the firmware never designs a receiver itself.
+pub mod rx_tables {
+    use flatbin::estimate::TimeFilter;
+    use flatbin::fixed_math::Scaled;
+    use flatbin::receiver_q15::DesignQ15;
+    use vectors_gen::rx::{RX_K, RX_M};
+
+    /// The designs at FFT size `N`, indexed as `vectors_gen::rx::RX_DESIGNS`.
+    pub trait RxDesigns<const N: usize> {
+        /// Design `index`, or None.
+        fn design(index: usize) -> Option<&'static DesignQ15<N, RX_K, RX_M>>;
+    }
+
+    /// Implements [`RxDesigns`] for every size the build script covers (64 and 256).
+    pub struct Tables;
+
+    include!(concat!(env!("OUT_DIR"), "/rx_designs.rs"));
+}
+
+/// Prints `words` as `w xxxxxxxx ...` lines (16 words each, one semihosting write per line),
+/// then `end`.
+pub fn print_words(words: impl Iterator<Item = u32>) {
+    use cortex_m_semihosting::{hio, hprintln};
+    const HEX: &[u8; 16] = b"0123456789abcdef";
+    let mut line = [0u8; 1 + 16 * 9 + 1];
+    let mut len = 0;
+    let flush = |line: &mut [u8], len: &mut usize| {
+        if let Some(l) = line.get_mut(*len) {
+            *l = b'\n';
+        }
+        if let (Ok(mut out), Some(bytes)) = (hio::hstdout(), line.get(..*len + 1)) {
+            let _ = out.write_all(bytes);
+        }
+        *len = 0;
+    };
+    for (i, w) in words.enumerate() {
+        if i % 16 == 0 {
+            if i > 0 {
+                flush(&mut line, &mut len);
+            }
+            line[0] = b'w';
+            len = 1;
+        }
+        line[len] = b' ';
+        for (j, slot) in line[len + 1..len + 9].iter_mut().enumerate() {
+            *slot = HEX[((w >> (28 - 4 * j)) & 0xf) as usize];
+        }
+        len += 9;
+    }
+    if len > 0 {
+        flush(&mut line, &mut len);
+    }
+    hprintln!("end");
 }

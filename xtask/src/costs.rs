@@ -58,6 +58,14 @@ const HEADER: &str = "\
 #   only this stage at this N (firmware/src/size_probe.rs) minus those of an empty one.
 # Input: complex Gaussian at -12 dBFS from firmware/vectors-gen (float costs on the Cortex-M0
 #   depend on the data).
+# rx_q15_* rows: one ReceiverQ15::receive call (K = M = 4) on symbol 4 of a frame from
+#   vectors_gen::rx (-12 dBFS, fixed multipath, 20 dB SNR) after symbols 0-3, design from the
+#   build.rs table (frequency LMMSE, time Latest; `2d`: time LMMSE). `symbol`: the whole call
+#   (gain, FFT, LS, time and frequency stages, common phase, equalization, i8 LLRs);
+#   `est_eq_demap`: the same call without its FFT (regions split around the FFT, calibrated
+#   by an empty split). Stack: of the whole call; not the receiver object (about 100*N bytes
+#   with its design). code_bytes: a firmware with the receiver minus one that builds only its
+#   Numerology; includes the FFT (not for `est_eq_demap`) and the design table (rodata).
 # Build: opt-level 3, fat LTO, codegen-units 1, panic=abort, Rust toolchain 1.95.0 (pinned);
 #   QEMU 7.2: cortex-m4f = mps2-an386 (-cpu cortex-m4), cortex-m0 = microbit (-cpu cortex-m0).
 core,stage,n,instructions,stack_bytes,code_bytes";
@@ -158,7 +166,7 @@ pub fn compare(measured: &[CostRow], committed: &[CostRow]) -> (Vec<String>, Vec
 
 fn print_table(measured: &[CostRow], committed: &[CostRow]) {
     println!(
-        "{:<11} {:<8} {:>5} {:>12} {:>9} {:>7} {:>7}",
+        "{:<11} {:<28} {:>5} {:>12} {:>9} {:>7} {:>7}",
         "core", "stage", "n", "instructions", "vs table", "stack B", "code B"
     );
     for m in measured {
@@ -174,7 +182,7 @@ fn print_table(measured: &[CostRow], committed: &[CostRow]) {
             })
             .unwrap_or_else(|| "new".into());
         println!(
-            "{:<11} {:<8} {:>5} {:>12} {:>9} {:>7} {:>7}",
+            "{:<11} {:<28} {:>5} {:>12} {:>9} {:>7} {:>7}",
             m.core, m.stage, m.n, m.instructions, delta, m.stack_bytes, m.code_bytes
         );
     }

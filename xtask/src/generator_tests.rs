@@ -81,3 +81,47 @@ fn seeds_differ_per_case_and_size() {
     });
     assert_ne!(a, b);
 }
+
+#[test]
+fn receiver_case_constants() {
+    use flatbin::receiver_q15::DigitalGain;
+    use vectors_gen::rx::{GAIN_28_DB, RX_NOISE_VAR, RX_SNR_DB};
+    // The integer gain of the "+28 dB" case is the core's own quantisation of 28 dB.
+    assert_eq!(GAIN_28_DB, DigitalGain::from_db(28.0));
+    // N0 of the designs is the noise level of the frames: 10^(-SNR/10).
+    let n0 = 10f64.powf(-f64::from(RX_SNR_DB) / 10.0);
+    assert!((f64::from(RX_NOISE_VAR) - n0).abs() < 1e-9);
+}
+
+#[test]
+fn receiver_frames_have_their_level() {
+    // Mean power of a frame against its case level (dBFS as DESIGN.md defines it: total
+    // complex power against a full-scale complex sinusoid). The channel taps' powers sum to
+    // 1 (rounded to Q15) and the noise adds 10^(-2) of the signal (0.04 dB); the mean over the
+    // 4 symbols outside the clipped bursts (1152 near-Gaussian samples at N = 256) has a
+    // standard deviation of about 1/sqrt(1152) = 3 % (0.13 dB): within 0.04 + 4 · 0.13 ≈ 0.6,
+    // bound 0.7 dB.
+    use vectors_gen::rx::{RxFrame, RX_CASES};
+    for (k, case) in RX_CASES.iter().enumerate() {
+        let mut frame = RxFrame::<256>::new(k).expect("frame");
+        let mut x = vec![flatbin::fixed::Cq15::ZERO; frame.symbol_len()];
+        let (mut sum, mut count) = (0.0f64, 0usize);
+        for symbol in 0..6 {
+            assert!(frame.symbol(symbol, &mut x));
+            if symbol % 3 == 1 {
+                continue;
+            }
+            for v in &x {
+                let (re, im) = (f64::from(v.re) / FULL_SCALE, f64::from(v.im) / FULL_SCALE);
+                sum += re * re + im * im;
+                count += 1;
+            }
+        }
+        let dbfs = 10.0 * (sum / count as f64).log10();
+        assert!(
+            (dbfs - f64::from(case.level_dbfs)).abs() < 0.7,
+            "{}: {dbfs:.2} dBFS",
+            case.label
+        );
+    }
+}

@@ -7,9 +7,13 @@
 //!    guest instructions between `probe_start` and `probe_stop`), takes code sizes from the
 //!    `size_*` probes with `nm`, and compares everything with `mcu/costs.csv`;
 //! 3. runs the `vectors` firmware and compares every output word bit for bit with the same
-//!    code run on the host, and prints the Q15 FFT's SQNR against an f64 reference;
+//!    code run on the host, and prints the Q15 FFT's SQNR against an f64 reference; runs
+//!    `rx_vectors` (the Q15 receiver on deterministic frames) and compares its outputs bit
+//!    for bit with the host's receiver on the same frames;
 //! 4. links `panic_free` (and `q15_only`), whose panic handler calls an undefined function:
-//!    a surviving panic path fails the link; checks that the M0 Q15 build links no soft float.
+//!    a surviving panic path fails the link; checks that the M0 Q15 FFT build links no soft
+//!    float and that no soft float is reachable from the Q15 receiver's per-symbol code
+//!    (`rx_q15_only`).
 //!
 //! See `firmware/README.md`.
 
@@ -17,6 +21,9 @@ mod costs;
 #[cfg(test)]
 mod generator_tests;
 mod panics;
+mod reach;
+#[cfg(feature = "q15")]
+mod rx_vectors;
 mod tools;
 mod vectors;
 
@@ -39,6 +46,8 @@ pub struct Core {
     pub cost_sizes: &'static [usize],
     /// FFT sizes of the bit-exact vectors.
     pub vector_sizes: &'static [usize],
+    /// FFT sizes of the Q15 receiver's costs and vectors (its state must fit the RAM).
+    pub rx_sizes: &'static [usize],
 }
 
 /// The cores, in table order. Sizes follow the boards' RAM (16 KiB on the microbit).
@@ -48,12 +57,15 @@ pub const CORES: [Core; 2] = [
         triple: "thumbv7em-none-eabihf",
         cost_sizes: &[64, 128, 256, 512, 1024],
         vector_sizes: &[16, 64, 256, 1024],
+        rx_sizes: &[64, 256],
     },
     Core {
         name: "cortex-m0",
         triple: "thumbv6m-none-eabi",
         cost_sizes: &[64, 128, 256],
         vector_sizes: &[16, 64, 256],
+        // ReceiverQ15<_, 256, 4, 4> alone is about 25 KiB: only N = 64 fits 16 KiB.
+        rx_sizes: &[64],
     },
 ];
 
@@ -64,6 +76,33 @@ pub fn stages() -> Vec<&'static str> {
     } else {
         vec!["fft_f32"]
     }
+}
+
+/// Q15 receiver stages (`firmware/src/bin/rx_cost.rs`), in table order: the whole
+/// `receive` call, and the same without its FFT (`est_eq_demap`), per modulation; `2d` uses
+/// the time LMMSE instead of time `Latest`.
+pub fn rx_stages() -> Vec<&'static str> {
+    if Q15 {
+        vec![
+            "rx_q15_symbol_qpsk",
+            "rx_q15_est_eq_demap_qpsk",
+            "rx_q15_symbol_qam16",
+            "rx_q15_est_eq_demap_qam16",
+            "rx_q15_2d_symbol_qam16",
+            "rx_q15_2d_est_eq_demap_qam16",
+        ]
+    } else {
+        Vec::new()
+    }
+}
+
+/// Every measured (stage, sizes) of `core`, in table order.
+fn expected_stages(core: &Core) -> Vec<(&'static str, &'static [usize])> {
+    stages()
+        .into_iter()
+        .map(|s| (s, core.cost_sizes))
+        .chain(rx_stages().into_iter().map(|s| (s, core.rx_sizes)))
+        .collect()
 }
 
 /// Repository root (the parent of this crate).
@@ -138,6 +177,13 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
         }
         if Q15 {
             bins.push("q15_only".into());
+            bins.push("rx_q15_only".into());
+            bins.push("rx_cost".into());
+            bins.push("rx_vectors".into());
+            bins.push("size_numerology".into());
+            for n in core.rx_sizes {
+                bins.push(format!("size_rx_q15_{n}"));
+            }
         }
         tools::build_firmware(&firmware, core.triple, &bins, &[])?;
         let elf = |bin: &str| tools::elf_path(&firmware, core.triple, bin);
@@ -146,14 +192,44 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
         panics::check_panic_free(&firmware, core, failures)?;
         if Q15 && core.triple.starts_with("thumbv6m") {
             check_no_soft_float(&elf("q15_only"), failures)?;
+            reach::check_rx_no_soft_float(&elf("rx_q15_only"), failures)?;
         }
 
         section(&format!("{}: instruction counts", core.name));
-        let runs = run_cost(core, &elf("cost"), failures)?;
+        let mut runs = run_cost(core, &elf("cost"), failures)?;
+        if Q15 {
+            runs.extend(run_cost(core, &elf("rx_cost"), failures)?);
+        }
+        check_all_measured(core, &runs, failures);
+        // Table order: the stages as listed, then N.
+        let order = expected_stages(core);
+        runs.sort_by_key(|(stage, n, _, _)| {
+            (
+                order
+                    .iter()
+                    .position(|(s, _)| s == stage)
+                    .unwrap_or(usize::MAX),
+                *n,
+            )
+        });
         let baseline = code_bytes(&elf("size_baseline"))?;
         for (stage, n, instructions, stack_bytes) in runs {
-            let probe = elf(&format!("size_{stage}_{n}"));
-            let code = code_bytes(&probe)?.saturating_sub(baseline);
+            let code = if stage.starts_with("rx_q15_") {
+                // The receiver probe against one that builds only its Numerology; without
+                // the FFT's own code for the `est_eq_demap` stages.
+                let rx = code_bytes(&elf(&format!("size_rx_q15_{n}")))?
+                    .saturating_sub(code_bytes(&elf("size_numerology"))?);
+                if stage.contains("est_eq_demap") {
+                    let fft =
+                        code_bytes(&elf(&format!("size_fft_q15_{n}")))?.saturating_sub(baseline);
+                    rx.saturating_sub(fft)
+                } else {
+                    rx
+                }
+            } else {
+                let probe = elf(&format!("size_{stage}_{n}"));
+                code_bytes(&probe)?.saturating_sub(baseline)
+            };
             measured.push(CostRow {
                 core: core.name.into(),
                 stage,
@@ -166,6 +242,14 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
 
         section(&format!("{}: bit-exact vectors", core.name));
         vectors::check(core, &elf("vectors"), failures)?;
+        #[cfg(feature = "q15")]
+        {
+            section(&format!(
+                "{}: Q15 receiver, bit-exact against the host",
+                core.name
+            ));
+            rx_vectors::check(core, &elf("rx_vectors"), failures)?;
+        }
     }
 
     section("cost table (mcu/costs.csv)");
@@ -190,8 +274,12 @@ fn code_bytes(elf: &Path) -> Result<u64, String> {
     Ok(total)
 }
 
-/// Runs the cost firmware under the counting plugin; returns (stage, n, instructions net of
-/// the empty region, stack bytes) for every case except the empty one.
+/// Runs a cost firmware (`cost`, `rx_cost`) under the counting plugin; returns (stage, n,
+/// instructions net of the overhead, stack bytes) for every case except the calibrations.
+///
+/// A case is one region, net of region 0 (`empty`), or a split measurement: parts 0, 1, 2
+/// (before the FFT, the FFT, after it; `firmware/src/bin/rx_cost.rs`), whose net is parts 0
+/// and 2 minus the same parts of `empty_split`.
 fn run_cost(
     core: &Core,
     elf: &Path,
@@ -199,9 +287,13 @@ fn run_cost(
 ) -> Result<Vec<(String, usize, u64, u64)>, String> {
     let symbols = nm_symbols(elf)?;
     let addr = |name: &str| symbols.iter().find(|s| s.name == name).map(|s| s.addr);
+    let bin = elf
+        .file_name()
+        .map(|f| f.to_string_lossy().into_owned())
+        .unwrap_or_default();
     match (addr("probe_start"), addr("probe_stop")) {
         (Some(a), Some(b)) if a != b => {
-            println!("probe_start at {a:#x}, probe_stop at {b:#x} (distinct)")
+            println!("{bin}: probe_start at {a:#x}, probe_stop at {b:#x} (distinct)")
         }
         (Some(a), Some(_)) => {
             return Err(format!(
@@ -221,7 +313,7 @@ fn run_cost(
     let out = tools::run_counted(elf)?;
     if out.status != Some(0) {
         failures.push(format!(
-            "{}: cost firmware exited with {:?} (failed checks or a hang){}",
+            "{}: {bin} firmware exited with {:?} (failed checks or a hang){}",
             core.name,
             out.status,
             tools::tail(&out.stdout, &out.stderr)
@@ -231,7 +323,7 @@ fn run_cost(
     let cases = tools::parse_records(&out.stdout, "case");
     if cases.len() != regions.len() {
         return Err(format!(
-            "{}: {} case lines but {} counted regions{}",
+            "{}: {bin}: {} case lines but {} counted regions{}",
             core.name,
             cases.len(),
             regions.len(),
@@ -239,13 +331,15 @@ fn run_cost(
         ));
     }
     let mut overhead = None;
+    // Split measurements: (stage, n) → [instructions of parts 0, 1, 2], and their stack.
+    let mut split: Vec<(String, usize, [Option<u64>; 3], u64)> = Vec::new();
     let mut rows = Vec::new();
     for (i, (case, region)) in cases.iter().zip(&regions).enumerate() {
         let field = |k: &str| case.get(k).cloned().unwrap_or_default();
         let num = |k: &str| field(k).parse::<u64>().ok();
         if num("region") != Some(region.index) || region.index != i as u64 {
             return Err(format!(
-                "{}: case/region order mismatch at region {i}",
+                "{}: {bin}: case/region order mismatch at region {i}",
                 core.name
             ));
         }
@@ -260,10 +354,13 @@ fn run_cost(
         let stack = num("stack").unwrap_or(0);
         if i == 0 {
             if stage != "empty" {
-                return Err(format!("{}: region 0 must be the empty stage", core.name));
+                return Err(format!(
+                    "{}: {bin}: region 0 must be the empty stage",
+                    core.name
+                ));
             }
             println!(
-                "empty region: {} instructions, {} B stack (overhead)",
+                "{bin}: empty region: {} instructions, {} B stack (overhead)",
                 region.insns, stack
             );
             overhead = Some(region.insns);
@@ -273,6 +370,25 @@ fn run_cost(
             return Err(format!("{}: no empty region", core.name));
         };
         let n = num("n").unwrap_or(0) as usize;
+        if let Some(part) = num("part") {
+            let entry = match split.iter_mut().find(|(s, m, _, _)| *s == stage && *m == n) {
+                Some(e) => e,
+                None => {
+                    split.push((stage.clone(), n, [None; 3], stack));
+                    split.last_mut().ok_or("split entry")?
+                }
+            };
+            match entry.2.get_mut(part as usize) {
+                Some(slot) if slot.is_none() => *slot = Some(region.insns),
+                _ => {
+                    return Err(format!(
+                        "{}: {bin}: {stage} n={n}: bad or repeated part {part}",
+                        core.name
+                    ))
+                }
+            }
+            continue;
+        }
         if region.insns <= over {
             failures.push(format!(
                 "{} {stage} n={n}: {} instructions does not exceed the empty-region overhead {over}",
@@ -282,8 +398,56 @@ fn run_cost(
         }
         rows.push((stage, n, region.insns - over, stack));
     }
-    for stage in stages() {
-        for &n in core.cost_sizes {
+    if !split.is_empty() {
+        let calibration = split
+            .iter()
+            .find(|(s, _, _, _)| s == "empty_split")
+            .and_then(|(_, _, p, _)| Some([p[0]?, p[1]?, p[2]?]))
+            .ok_or_else(|| {
+                format!(
+                    "{}: {bin}: split parts without a complete empty_split",
+                    core.name
+                )
+            })?;
+        println!(
+            "{bin}: empty_split regions: {} + {} + {} instructions (overhead of a split)",
+            calibration[0], calibration[1], calibration[2]
+        );
+        for (stage, n, parts, stack) in split.iter().filter(|(s, _, _, _)| s != "empty_split") {
+            let [Some(a), Some(f), Some(b)] = *parts else {
+                failures.push(format!(
+                    "{} {stage} n={n}: incomplete split measurement",
+                    core.name
+                ));
+                continue;
+            };
+            let (before, after) = (
+                a.saturating_sub(calibration[0]),
+                b.saturating_sub(calibration[2]),
+            );
+            if before == 0 || after == 0 {
+                failures.push(format!(
+                    "{} {stage} n={n}: split parts {a} / {b} do not exceed their overhead",
+                    core.name
+                ));
+                continue;
+            }
+            println!(
+                "{} {stage} n={n}: {before} before the FFT + {after} after it; the FFT inside \
+                 the call: {} instructions",
+                core.name,
+                f.saturating_sub(calibration[1])
+            );
+            rows.push((stage.clone(), *n, before + after, *stack));
+        }
+    }
+    Ok(rows)
+}
+
+/// Every expected (stage, n) of `core` was measured.
+fn check_all_measured(core: &Core, rows: &[(String, usize, u64, u64)], failures: &mut Failures) {
+    for (stage, sizes) in expected_stages(core) {
+        for &n in sizes {
             if !rows.iter().any(|(s, m, _, _)| s == stage && *m == n) {
                 failures.push(format!(
                     "{} {stage} n={n}: no measurement from the firmware",
@@ -292,12 +456,11 @@ fn run_cost(
             }
         }
     }
-    Ok(rows)
 }
 
 /// Soft-float routines: EABI helpers (`__aeabi_f*`, `__aeabi_d*`, `__aeabi_*2f`, `__aeabi_*2d`),
 /// libgcc-style names (`__addsf3`, `__fixdfsi`, …) and compiler-builtins' float module.
-fn is_soft_float(name: &str) -> bool {
+pub(crate) fn is_soft_float(name: &str) -> bool {
     if let Some(rest) = name.strip_prefix("__aeabi_") {
         return rest.starts_with('f')
             || rest.starts_with('d')

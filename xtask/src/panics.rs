@@ -52,9 +52,22 @@ pub fn check_panic_free(
     Ok(())
 }
 
-fn objdump() -> Option<String> {
+/// An objdump that disassembles Thumb: LLVM's on PATH, the rustup `llvm-tools` component's,
+/// or GNU's for arm-none-eabi.
+pub(crate) fn objdump() -> Option<String> {
     let mut names: Vec<String> = vec!["llvm-objdump".into()];
     names.extend((14..=21).rev().map(|v| format!("llvm-objdump-{v}")));
+    if let Ok(out) = Command::new("rustc").args(["--print", "sysroot"]).output() {
+        let sysroot = String::from_utf8_lossy(&out.stdout).trim().to_string();
+        if let Ok(dir) = std::fs::read_dir(Path::new(&sysroot).join("lib").join("rustlib")) {
+            for d in dir.flatten() {
+                let tool = d.path().join("bin").join("llvm-objdump");
+                if tool.is_file() {
+                    names.push(tool.to_string_lossy().into_owned());
+                }
+            }
+        }
+    }
     names.push("arm-none-eabi-objdump".into());
     names.into_iter().find(|n| {
         Command::new(n)
@@ -158,17 +171,17 @@ fn locate(firmware: &Path, core: &Core) -> Result<Vec<String>, String> {
 }
 
 /// One disassembled instruction.
-struct Insn {
-    addr: u64,
-    op: String,
+pub(crate) struct Insn {
+    pub(crate) addr: u64,
+    pub(crate) op: String,
     /// First operand that is an address (branch target).
-    target: Option<u64>,
-    text: String,
+    pub(crate) target: Option<u64>,
+    pub(crate) text: String,
 }
 
 /// Parses `objdump -d --no-show-raw-insn` lines: `    2506:  \tbl\t0x11954 <sym>` (llvm) or
 /// `    2506:\tbl\t11954 <sym>` (GNU).
-fn parse_disassembly(text: &str) -> Vec<Insn> {
+pub(crate) fn parse_disassembly(text: &str) -> Vec<Insn> {
     text.lines()
         .filter_map(|line| {
             let mut parts = line.split_whitespace();

@@ -192,6 +192,26 @@ pub fn build_firmware(
     }
 }
 
+/// Runs a firmware ELF under plain QEMU on `core`'s board (semihosting on, 120 s limit).
+pub fn run_qemu(core: &Core, elf: &Path) -> Result<Captured, String> {
+    let mach: &[&str] = if core.triple.starts_with("thumbv6m") {
+        &["-cpu", "cortex-m0", "-machine", "microbit"]
+    } else {
+        &["-cpu", "cortex-m4", "-machine", "mps2-an386"]
+    };
+    run(Command::new("timeout")
+        .arg("120")
+        .arg("qemu-system-arm")
+        .args(mach)
+        .args([
+            "-nographic",
+            "-semihosting-config",
+            "enable=on,target=native",
+            "-kernel",
+        ])
+        .arg(elf))
+}
+
 /// Runs an ELF under QEMU with the instruction-counting plugin (`qemu/run-counted`). The
 /// plugin is compiled into the firmware's target directory, and again when `insncount.c`
 /// is newer than the compiled copy.

@@ -4,27 +4,34 @@
 
 use std::collections::BTreeMap;
 use std::path::Path;
-use std::process::Command;
 
 use flatbin::fft::{MicroFft, OfdmFft};
 use flatbin::Cf32;
 use rustfft::num_complex::Complex;
 use vectors_gen::{Fnv1a32, CASES};
 
-use crate::tools::{fields, run, tail, Failures};
+use crate::tools::{self, fields, tail, Failures};
 use crate::{stages, Core};
 
 /// One printed block.
-struct Block {
-    header: BTreeMap<String, String>,
-    words: Vec<u32>,
+pub(crate) struct Block {
+    /// `key=value` fields of the header line.
+    pub(crate) header: BTreeMap<String, String>,
+    /// The words of its `w` lines.
+    pub(crate) words: Vec<u32>,
 }
 
 fn parse_blocks(stdout: &str) -> Result<Vec<Block>, String> {
+    parse_blocks_tagged(stdout, "vec ")
+}
+
+/// Blocks whose header line starts with `tag` (e.g. `"vec "`), each followed by `w` lines and
+/// `end`.
+pub(crate) fn parse_blocks_tagged(stdout: &str, tag: &str) -> Result<Vec<Block>, String> {
     let mut blocks: Vec<Block> = Vec::new();
     let mut open = false;
     for line in stdout.lines() {
-        if let Some(rest) = line.strip_prefix("vec ") {
+        if let Some(rest) = line.strip_prefix(tag) {
             if open {
                 return Err("`vec` block without `end`".into());
             }
@@ -159,22 +166,7 @@ pub fn sqnr_db(y: &[Complex<f64>], reference: &[Complex<f64>]) -> f64 {
 
 /// Runs the vectors firmware and checks every block against the host.
 pub fn check(core: &Core, elf: &Path, failures: &mut Failures) -> Result<(), String> {
-    let mach: &[&str] = if core.triple.starts_with("thumbv6m") {
-        &["-cpu", "cortex-m0", "-machine", "microbit"]
-    } else {
-        &["-cpu", "cortex-m4", "-machine", "mps2-an386"]
-    };
-    let out = run(Command::new("timeout")
-        .arg("120")
-        .arg("qemu-system-arm")
-        .args(mach)
-        .args([
-            "-nographic",
-            "-semihosting-config",
-            "enable=on,target=native",
-            "-kernel",
-        ])
-        .arg(elf))?;
+    let out = tools::run_qemu(core, elf)?;
     if out.status != Some(0) {
         failures.push(format!(
             "{}: vectors firmware exited with {:?}{}",

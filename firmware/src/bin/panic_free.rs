@@ -20,6 +20,12 @@ use flatbin::{Cf32, Modulation, Numerology, NumerologyParams};
 use flatbin_firmware::{exit, prefix};
 
 #[cfg(feature = "q15")]
+use flatbin::estimate::{TimeFilter, MAX_PATTERN_PERIOD};
+#[cfg(feature = "q15")]
+use flatbin::fixed_math::Scaled;
+#[cfg(feature = "q15")]
+use flatbin::receiver_q15::{DesignQ15, DigitalGain, ReceiverQ15};
+#[cfg(feature = "q15")]
 use flatbin::{fft_q15::Q15Fft, fixed::Cq15, transmit_q15::TransmitterQ15};
 
 #[cfg(not(feature = "locate-panics"))]
@@ -40,9 +46,7 @@ fn panic(_: &core::panic::PanicInfo) -> ! {
 #[cfg(feature = "locate-panics")]
 #[panic_handler]
 fn panic(_: &core::panic::PanicInfo) -> ! {
-    loop {
-        cortex_m::asm::udf();
-    }
+    cortex_m::asm::udf()
 }
 
 /// Keeps a value alive without a `must_use` warning (results are not inspected here).
@@ -67,6 +71,12 @@ static mut LLRS: [f32; 64] = [0.0; 64];
 static mut LLRS_I8: [i8; 64] = [0; 64];
 #[cfg(feature = "q15")]
 static mut BUF_Q15: [Cq15; MAX_SYMBOL] = [Cq15 { re: 0, im: 0 }; MAX_SYMBOL];
+#[cfg(feature = "q15")]
+static mut EQUALIZED_Q15: [Cq15; MAX_N] = [Cq15 { re: 0, im: 0 }; MAX_N];
+#[cfg(feature = "q15")]
+static mut SINR_Q15: [Scaled; MAX_N] = [Scaled { mant: 0, exp: 0 }; MAX_N];
+#[cfg(feature = "q15")]
+static mut LLRS_Q15: [i8; MAX_BITS] = [0; MAX_BITS];
 
 struct Buffers {
     samples: &'static mut [Cf32; MAX_SYMBOL],
@@ -76,6 +86,12 @@ struct Buffers {
     llrs_i8: &'static mut [i8; 64],
     #[cfg(feature = "q15")]
     q15: &'static mut [Cq15; MAX_SYMBOL],
+    #[cfg(feature = "q15")]
+    equalized_q15: &'static mut [Cq15; MAX_N],
+    #[cfg(feature = "q15")]
+    sinr_q15: &'static mut [Scaled; MAX_N],
+    #[cfg(feature = "q15")]
+    llrs_q15: &'static mut [i8; MAX_BITS],
 }
 
 fn params(n: usize) -> NumerologyParams {
@@ -130,6 +146,62 @@ fn at_size<const N: usize>(b: &mut Buffers) {
         let out = b.q15.get_mut(..len).unwrap_or_default();
         sink(tx.modulate(modulation, black_box(bits), symbol, black_box(out)));
     }
+    #[cfg(feature = "q15")]
+    receiver_q15::<N>(&nu, b);
+}
+
+/// A design the optimiser cannot see into (any values: the receiver must not panic for any).
+#[cfg(feature = "q15")]
+fn opaque_design<const N: usize>() -> DesignQ15<N, 4, 4> {
+    black_box(DesignQ15 {
+        lattice: [0; N],
+        lattice_len: 0,
+        lattice_of: [0; N],
+        every_symbol: [false; N],
+        taps: [[(0, 0); 4]; N],
+        first_tap: [0; N],
+        time_weights: [[[[0; 4]; 4]; MAX_PATTERN_PERIOD]; 2],
+        time: TimeFilter::Latest,
+        lambda_q15: 0,
+        inv_pilot: Scaled { mant: 0, exp: 0 },
+        weight: [Scaled { mant: 0, exp: 0 }; N],
+        cpe: false,
+    })
+}
+
+/// The Q15 receiver's per-symbol entry points at size N (K = M = 4), and the conversions in
+/// front of it. Never run: the receiver lives on the stack here.
+#[cfg(feature = "q15")]
+#[inline(never)]
+fn receiver_q15<const N: usize>(nu: &Numerology, b: &mut Buffers) {
+    let len = black_box(nu.symbol_len());
+    let gain = black_box(DigitalGain {
+        mant: black_box(23_170),
+        shift: black_box(3),
+    });
+    sink(gain.apply(black_box(&b.q15[..]), black_box(&mut b.equalized_q15[..])));
+    // f32 samples to Q15: float, so on the M4F only.
+    #[cfg(not(core_m0))]
+    sink(flatbin::receiver_q15::samples_to_q15(
+        black_box(b.samples.get(..len).unwrap_or_default()),
+        black_box(&mut b.q15[..]),
+    ));
+    let Ok(mut rx) =
+        ReceiverQ15::<Q15Fft<N>, N, 4, 4>::new(nu, Q15Fft::new(), opaque_design::<N>())
+    else {
+        return;
+    };
+    let rx = black_box(&mut rx);
+    rx.set_gain(gain);
+    sink(rx.receive(
+        black_box(b.q15.get(..len).unwrap_or_default()),
+        black_box(3u32),
+        black_box(Modulation::Qam16),
+        black_box(&mut b.equalized_q15[..]),
+        black_box(&mut b.sinr_q15[..]),
+        black_box(&mut b.llrs_q15[..]),
+    ));
+    rx.reset();
 }
 
 /// The demapper entry points (size-independent).
@@ -175,6 +247,12 @@ fn main() -> ! {
             llrs_i8: &mut *addr_of_mut!(LLRS_I8),
             #[cfg(feature = "q15")]
             q15: &mut *addr_of_mut!(BUF_Q15),
+            #[cfg(feature = "q15")]
+            equalized_q15: &mut *addr_of_mut!(EQUALIZED_Q15),
+            #[cfg(feature = "q15")]
+            sinr_q15: &mut *addr_of_mut!(SINR_Q15),
+            #[cfg(feature = "q15")]
+            llrs_q15: &mut *addr_of_mut!(LLRS_Q15),
         }
     };
     at_size::<16>(&mut b);

@@ -20,10 +20,10 @@
 use core::ptr::addr_of_mut;
 
 use cortex_m_rt::entry;
-use cortex_m_semihosting::{hio, hprintln};
+use cortex_m_semihosting::hprintln;
 use flatbin::fft::{MicroFft, OfdmFft};
 use flatbin::Cf32;
-use flatbin_firmware::{exit, fill, prefix, CORE};
+use flatbin_firmware::{exit, fill, prefix, print_words, CORE};
 use panic_semihosting as _;
 use vectors_gen::{Fnv1a32, CASES};
 
@@ -38,41 +38,6 @@ const MAX_N: usize = 256;
 static mut BUF_F32: [Cf32; MAX_N] = [Cf32::new(0.0, 0.0); MAX_N];
 #[cfg(feature = "q15")]
 static mut BUF_Q15: [Cq15; MAX_N] = [Cq15 { re: 0, im: 0 }; MAX_N];
-
-/// Prints `words` as `w xxxxxxxx ...` lines (16 words each, one semihosting write per line),
-/// then `end`.
-fn print_words(words: impl Iterator<Item = u32>) {
-    const HEX: &[u8; 16] = b"0123456789abcdef";
-    let mut line = [0u8; 1 + 16 * 9 + 1];
-    let mut len = 0;
-    let flush = |line: &mut [u8], len: &mut usize| {
-        if let Some(l) = line.get_mut(*len) {
-            *l = b'\n';
-        }
-        if let (Ok(mut out), Some(bytes)) = (hio::hstdout(), line.get(..*len + 1)) {
-            let _ = out.write_all(bytes);
-        }
-        *len = 0;
-    };
-    for (i, w) in words.enumerate() {
-        if i % 16 == 0 {
-            if i > 0 {
-                flush(&mut line, &mut len);
-            }
-            line[0] = b'w';
-            len = 1;
-        }
-        line[len] = b' ';
-        for (j, slot) in line[len + 1..len + 9].iter_mut().enumerate() {
-            *slot = HEX[((w >> (28 - 4 * j)) & 0xf) as usize];
-        }
-        len += 9;
-    }
-    if len > 0 {
-        flush(&mut line, &mut len);
-    }
-    hprintln!("end");
-}
 
 fn fft_f32<const N: usize>(buf: &mut [Cf32], failures: &mut u32) {
     let Some(x) = prefix::<Cf32, N>(buf) else {

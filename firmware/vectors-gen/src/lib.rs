@@ -14,6 +14,8 @@
 #![no_std]
 #![deny(missing_docs)]
 
+pub mod rx;
+
 /// Q15 full scale in LSB: a Q15 fraction `v` is `v / FULL_SCALE`.
 pub const FULL_SCALE: f64 = 32768.0;
 /// Largest magnitude produced; samples are clipped to `±CLIP`.

@@ -1,0 +1,6 @@
+//! Size probe `size_rx_q15_256`: see `src/size_rx_probe.rs`.
+
+#![no_std]
+#![no_main]
+
+include!("../size_rx_probe.rs");
