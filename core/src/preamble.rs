@@ -141,6 +141,19 @@ mod tests {
     use crate::numerology::NumerologyParams;
 
     #[test]
+    fn the_transmitter_writes_the_same_preamble() {
+        let nu = Numerology::new(NumerologyParams::default()).unwrap();
+        let mut a = [Cf32::new(0.0, 0.0); 144];
+        let mut b = [Cf32::new(0.0, 0.0); 144];
+        write_preamble(&nu, &mut MicroFft::<64>::new(), &mut a).unwrap();
+        crate::transmit::Transmitter::new(nu, MicroFft::<64>::new())
+            .unwrap()
+            .preamble(&mut b)
+            .unwrap();
+        assert_eq!(a, b);
+    }
+
+    #[test]
     fn symbol_a_has_two_identical_halves_and_the_cp_is_a_copy() {
         // Only even subcarriers → period N/2 in time (DFT property; Schmidl & Cox 1997).
         let nu = Numerology::new(NumerologyParams::default()).unwrap();

@@ -58,6 +58,12 @@ impl<F: OfdmFft<N, Sample = Cf32>, const N: usize> Transmitter<F, N> {
         fill_grid(&self.numerology, modulation, bits, symbol, grid)
     }
 
+    /// Writes the frame preamble (symbols A and B with their cyclic prefixes, `2(N + L)`
+    /// samples; see [`crate::preamble`]) into `out`.
+    pub fn preamble(&mut self, out: &mut [Cf32]) -> Result<(), ProcessError> {
+        crate::preamble::write_preamble(&self.numerology, &mut self.fft, out)
+    }
+
     /// Modulates one OFDM symbol: `bits` as for [`map_grid`](Self::map_grid), into `out`
     /// (exactly `N + L` samples: cyclic prefix, then the useful part).
     pub fn modulate(
