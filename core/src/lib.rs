@@ -21,6 +21,10 @@
 //! * [`transmit`] — bits to time-domain samples with cyclic prefix; [`transmit_q15`] — the
 //!   same in Q15 with no floating point per symbol.
 //! * [`front`] — cyclic-prefix removal and FFT on the receive side.
+//! * [`gain_dc`] — DC offset and digital gain from the preamble (f32, and Q15 with no
+//!   floating point).
+//! * [`nco`] — NCO derotation of a carrier frequency offset before the FFT (f32, and Q15 from
+//!   a compile-time sine table).
 //! * [`demap`] — hard decisions and channel-state-weighted max-log LLRs (f32 and saturated i8).
 //!
 //! ## Example: one symbol through transmitter and receiver
@@ -85,8 +89,10 @@ pub mod fft_q15;
 pub mod fixed;
 pub mod fixed_math;
 pub mod front;
+pub mod gain_dc;
 pub mod linalg;
 pub mod modulation;
+pub mod nco;
 pub mod numerology;
 pub mod packed;
 pub mod pilots;
