@@ -88,6 +88,7 @@ pub mod fft;
 pub mod fft_q15;
 pub mod fixed;
 pub mod fixed_math;
+pub mod frame;
 pub mod front;
 pub mod gain_dc;
 pub mod linalg;
