@@ -89,6 +89,7 @@ pub mod fft_q15;
 pub mod fixed;
 pub mod fixed_math;
 pub mod frame;
+pub mod frame_q15;
 pub mod front;
 pub mod gain_dc;
 pub mod linalg;
@@ -101,6 +102,7 @@ pub mod preamble;
 pub mod receiver;
 pub mod receiver_q15;
 pub mod sco;
+pub mod sync_q15;
 pub mod transmit;
 pub mod transmit_q15;
 

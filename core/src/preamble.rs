@@ -91,6 +91,32 @@ pub fn preamble_grid<const N: usize>(
     }
 }
 
+/// The signs of preamble `symbol` per FFT index (+1, −1; 0 on empty bins), from the same PRBS
+/// as [`preamble_grid`] with no floating point (for the integer receiver).
+pub fn preamble_signs<const N: usize>(numerology: &Numerology, symbol: PreambleSymbol) -> [i8; N] {
+    let mut out = [0i8; N];
+    let seed = numerology.params().pilots.seed;
+    let mut prbs = Prbs15::for_symbol(
+        seed,
+        match symbol {
+            PreambleSymbol::A => STREAM_A,
+            PreambleSymbol::B => STREAM_B,
+        },
+    );
+    for u in 0..numerology.used_len() {
+        let k = numerology.logical_bin(u);
+        if symbol == PreambleSymbol::A && k % 2 != 0 {
+            continue;
+        }
+        // `next_pilot` maps bit 0 to +amplitude, 1 to −amplitude.
+        let sign = if prbs.next_bit() == 0 { 1 } else { -1 };
+        if let Some(slot) = out.get_mut(numerology.fft_index(u)) {
+            *slot = sign;
+        }
+    }
+    out
+}
+
 /// Writes the preamble (symbol A then symbol B, each `N + L` samples with its CP) into `out`
 /// (exactly `2(N + L)` samples), unitary scale as the transmitter's data symbols.
 pub fn write_preamble<F: OfdmFft<N, Sample = Cf32>, const N: usize>(
@@ -174,5 +200,14 @@ mod tests {
             .count() as f32;
         assert!((pa - 2.0 * even).abs() < 1e-3);
         assert_eq!(preamble_bin(&nu, PreambleSymbol::B, 3).norm(), 1.0);
+        // The integer signs agree with the grid.
+        for s in [PreambleSymbol::A, PreambleSymbol::B] {
+            let mut g = [Cf32::new(0.0, 0.0); 64];
+            preamble_grid(&nu, s, &mut g);
+            let signs = preamble_signs::<64>(&nu, s);
+            for (v, sg) in g.iter().zip(signs.iter()) {
+                assert_eq!(f32::from(*sg), v.re.signum() * f32::from(v.re != 0.0));
+            }
+        }
     }
 }

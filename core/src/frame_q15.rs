@@ -1,0 +1,295 @@
+//! The streaming frame receiver in integers only: Q15 samples in chunks of any size →
+//! [`AcquirerQ15`] → DC (CFO-aware) and even-integer CFO, fine timing on preamble symbol B
+//! ([`crate::sync_q15`]) → [`NcoQ15`] derotation → digital gain from the preamble power
+//! ([`gain_for_backoff_q15`]) → [`ReceiverQ15`] per symbol, each decoded symbol handed to a
+//! callback. No floating point on any per-sample or per-frame path (a Cortex-M0 path); the
+//! configuration (threshold, target amplitude) is given as integers.
+
+use crate::acquire_q15::AcquirerQ15;
+use crate::error::{ConfigError, ProcessError};
+use crate::fft_q15::Q15Fft;
+use crate::fixed::Cq15;
+use crate::fixed_math::Scaled;
+use crate::gain_dc::{estimate_dc_cfo_q15, gain_for_backoff_q15, PowerQ15};
+use crate::modulation::Modulation;
+use crate::nco::{increment_for_cfo_q16, NcoQ15};
+use crate::numerology::Numerology;
+use crate::receiver_q15::{DesignQ15, ReceiverQ15};
+use crate::sync_q15::{first_path_offset_q15, total_cfo_q15};
+
+/// Frame settings, all integers.
+#[derive(Clone, Copy, Debug, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct FrameConfigQ15 {
+    /// Acquisition threshold on M, Q16.
+    pub threshold_q16: u32,
+    /// Target FFT-input amplitude, Q30 ([`crate::gain_dc::target_amplitude_q30`]).
+    pub target_amplitude_q30: u32,
+    /// Data symbols per frame.
+    pub frame_symbols: u32,
+    /// Modulation of the data symbols.
+    pub modulation: Modulation,
+    /// Largest |integer CFO| searched, subcarrier spacings.
+    pub max_integer_cfo: usize,
+    /// First-path threshold of the fine timing, Q16 fraction of the strongest path.
+    pub first_path_q16: u32,
+}
+
+/// One decoded data symbol (integer form).
+#[derive(Debug)]
+pub struct SymbolEventQ15<'a> {
+    /// Data symbol index within the frame.
+    pub symbol: u32,
+    /// Equalized data symbols, Q3.12.
+    pub equalized: &'a [Cq15],
+    /// Per-bin SINR weights.
+    pub sinr: &'a [Scaled],
+    /// i8 LLRs (4 per unit of LLR).
+    pub llrs: &'a [i8],
+    /// Components saturated by the NCO and the digital gain.
+    pub clipped: usize,
+    /// Total CFO of the frame, Q16 subcarrier spacings.
+    pub cfo_q16: i32,
+    /// Stream index of this symbol's FFT window.
+    pub window_start: u64,
+}
+
+#[derive(Clone, Copy, Debug)]
+enum State {
+    Searching,
+    WaitB {
+        w: u64,
+        frac_q31: i32,
+    },
+    Data {
+        origin: u64,
+        next: u64,
+        symbol: u32,
+        cfo_q16: i32,
+    },
+}
+
+/// Integer streaming frame receiver: FFT size `N`, `K` taps, `M` history, ring of `R ≥ 4N`
+/// samples.
+pub struct FrameReceiverQ15<const N: usize, const K: usize, const M: usize, const R: usize> {
+    numerology: Numerology,
+    config: FrameConfigQ15,
+    acq: AcquirerQ15<N>,
+    acq_origin: u64,
+    rx: ReceiverQ15<Q15Fft<N>, N, K, M>,
+    fft: Q15Fft<N>,
+    nco: NcoQ15,
+    dc: Cq15,
+    ring: [Cq15; R],
+    seen: u64,
+    state: State,
+    sym: [Cq15; R],
+    eq: [Cq15; N],
+    sinr: [Scaled; N],
+    llrs: [i8; R],
+}
+
+impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiverQ15<N, K, M, R> {
+    /// A frame receiver from a Q15 design (built for the same target level).
+    pub fn new(
+        numerology: &Numerology,
+        design: DesignQ15<N, K, M>,
+        config: FrameConfigQ15,
+    ) -> Result<Self, ConfigError> {
+        if R < 4 * N || R < 8 * numerology.max_data_len() || R < numerology.symbol_len() {
+            return Err(ConfigError::FftSizeMismatch {
+                numerology: 4 * N,
+                stage: R,
+            });
+        }
+        Ok(Self {
+            numerology: *numerology,
+            config,
+            acq: AcquirerQ15::new(numerology, config.threshold_q16)?,
+            acq_origin: 0,
+            rx: ReceiverQ15::new(numerology, Q15Fft::new(), design)?,
+            fft: Q15Fft::new(),
+            nco: NcoQ15::new(),
+            dc: Cq15::ZERO,
+            ring: [Cq15::ZERO; R],
+            seen: 0,
+            state: State::Searching,
+            sym: [Cq15::ZERO; R],
+            eq: [Cq15::ZERO; N],
+            sinr: [Scaled::default(); N],
+            llrs: [0; R],
+        })
+    }
+
+    fn copy_out(&self, from: u64, out: &mut [Cq15]) {
+        for (i, o) in out.iter_mut().enumerate() {
+            *o = self
+                .ring
+                .get(((from + i as u64) % R as u64) as usize)
+                .copied()
+                .unwrap_or_default();
+        }
+    }
+
+    fn remove_dc(&self, x: &mut [Cq15]) {
+        let dc = self.dc;
+        if dc == Cq15::ZERO {
+            return;
+        }
+        for v in x.iter_mut() {
+            *v = Cq15::new(v.re.saturating_sub(dc.re), v.im.saturating_sub(dc.im));
+        }
+    }
+
+    /// Consumes `samples` (any chunk size), calling `on_symbol` for each data symbol decoded.
+    pub fn push(
+        &mut self,
+        samples: &[Cq15],
+        mut on_symbol: impl FnMut(SymbolEventQ15<'_>),
+    ) -> Result<(), ProcessError> {
+        let n_len = N as u64;
+        let ns = self.numerology.symbol_len() as u64;
+        let cp = self.numerology.cp_len() as u64;
+        for (i, &x) in samples.iter().enumerate() {
+            if let Some(slot) = self.ring.get_mut((self.seen % R as u64) as usize) {
+                *slot = x;
+            }
+            self.seen += 1;
+            match self.state {
+                State::Searching => {
+                    if let Some(d) = self.acq.push(samples.get(i..=i).unwrap_or_default())? {
+                        self.state = State::WaitB {
+                            w: self.acq_origin + d.window_start,
+                            frac_q31: d.cfo_fraction_q31,
+                        };
+                    }
+                }
+                State::WaitB { w, frac_q31 } => {
+                    if self.seen < w + ns + n_len + n_len / 4 {
+                        continue;
+                    }
+                    let mut a = [Cq15::ZERO; N];
+                    let mut b = [Cq15::ZERO; N];
+                    self.copy_out(w, &mut a);
+                    self.copy_out(w + ns, &mut b);
+                    let cfo_q16 = total_cfo_q15(
+                        &self.numerology,
+                        &mut self.fft,
+                        &a,
+                        &b,
+                        frac_q31,
+                        self.config.max_integer_cfo,
+                    );
+                    let inc = increment_for_cfo_q16(cfo_q16, N);
+                    // DC over the span from A's window to the end of B's (CFO-aware: the plain
+                    // mean picks up leakage of the bins next to DC; zero when it cannot tell).
+                    let span = (ns + n_len) as usize;
+                    let mut buf = self.sym;
+                    self.dc = match buf.get_mut(..span) {
+                        Some(s) => {
+                            self.copy_out(w, s);
+                            estimate_dc_cfo_q15(s, inc).unwrap_or(Cq15::ZERO)
+                        }
+                        None => Cq15::ZERO,
+                    };
+                    self.sym = buf;
+                    self.remove_dc(&mut b);
+                    self.nco.set_increment(inc);
+                    self.nco.set_phase(0);
+                    self.nco.advance(ns);
+                    self.nco.derotate(&mut b);
+                    let shift = first_path_offset_q15(
+                        &self.numerology,
+                        &mut self.fft,
+                        &b,
+                        self.config.first_path_q16,
+                    );
+                    let mut power = PowerQ15::new();
+                    power.add(&b, Cq15::ZERO);
+                    match gain_for_backoff_q15(power, self.config.target_amplitude_q30) {
+                        Some(g) => {
+                            self.rx.set_gain(g);
+                            self.rx.reset();
+                            let origin = (w as i64 + i64::from(shift)).max(0) as u64;
+                            self.state = State::Data {
+                                origin,
+                                next: origin + 2 * ns - cp,
+                                symbol: 0,
+                                cfo_q16,
+                            };
+                        }
+                        None => self.restart(),
+                    }
+                }
+                State::Data {
+                    origin,
+                    next,
+                    symbol,
+                    cfo_q16,
+                } => {
+                    if self.seen < next + ns {
+                        continue;
+                    }
+                    let len = ns as usize;
+                    let mut buf = self.sym;
+                    let mut clipped = 0;
+                    if let Some(s) = buf.get_mut(..len) {
+                        self.copy_out(next, s);
+                        self.remove_dc(s);
+                        self.nco.set_phase(0);
+                        self.nco.advance(next.saturating_sub(origin));
+                        clipped += self.nco.derotate(s);
+                    }
+                    self.sym = buf;
+                    let counts = self.rx.receive(
+                        self.sym.get(..len).unwrap_or_default(),
+                        symbol,
+                        self.config.modulation,
+                        &mut self.eq,
+                        &mut self.sinr,
+                        &mut self.llrs,
+                    )?;
+                    on_symbol(SymbolEventQ15 {
+                        symbol,
+                        equalized: self.eq.get(..counts.data_bins).unwrap_or_default(),
+                        sinr: self.sinr.get(..counts.data_bins).unwrap_or_default(),
+                        llrs: self.llrs.get(..counts.llrs).unwrap_or_default(),
+                        clipped: clipped + counts.clipped,
+                        cfo_q16,
+                        window_start: next + cp,
+                    });
+                    if symbol + 1 >= self.config.frame_symbols {
+                        self.restart();
+                    } else {
+                        self.state = State::Data {
+                            origin,
+                            next: next + ns,
+                            symbol: symbol + 1,
+                            cfo_q16,
+                        };
+                    }
+                }
+            }
+        }
+        Ok(())
+    }
+
+    fn restart(&mut self) {
+        self.state = State::Searching;
+        if let Ok(a) = AcquirerQ15::new(&self.numerology, self.config.threshold_q16) {
+            self.acq = a;
+            self.acq_origin = self.seen;
+        }
+    }
+}
+
+impl<const N: usize, const K: usize, const M: usize, const R: usize> core::fmt::Debug
+    for FrameReceiverQ15<N, K, M, R>
+{
+    fn fmt(&self, f: &mut core::fmt::Formatter<'_>) -> core::fmt::Result {
+        f.debug_struct("FrameReceiverQ15")
+            .field("seen", &self.seen)
+            .field("state", &self.state)
+            .finish()
+    }
+}
