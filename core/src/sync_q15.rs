@@ -109,6 +109,6 @@ pub fn first_path_offset_q15<F: OfdmFft<N, Sample = Cq15>, const N: usize>(
     if peak == 0 {
         return 0;
     }
-    let level = (u128::from(peak) * u128::from(fraction_q16) >> 16) as u64;
+    let level = ((u128::from(peak) * u128::from(fraction_q16)) >> 16) as u64;
     (-q..q).find(|&lag| power(lag) >= level).unwrap_or(0)
 }
