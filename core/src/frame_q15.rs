@@ -33,6 +33,14 @@ pub struct FrameConfigQ15 {
     pub max_integer_cfo: usize,
     /// First-path threshold of the fine timing, Q16 fraction of the strongest path.
     pub first_path_q16: u32,
+    /// DC blocker before acquisition: a first-order tracker `d ← d + (x − d)·2^−k` subtracted
+    /// from every sample, `k` this value (0: off). Its time constant is `2^k` samples and its
+    /// corner about fs/(2π·2^k): `k = 6` settles within 100–300 samples of listening and leaves
+    /// the first subcarrier of N = 64 at −0.1 dB (a static response the channel estimate
+    /// absorbs). Without it, a DC offset at the noise level raised the Schmidl & Cox metric
+    /// before the frame: the end-to-end test's BER went from 8e-3 to 0.13 through early
+    /// detections with CFO errors of ±4 subcarriers.
+    pub dc_block_shift: u8,
 }
 
 /// One decoded data symbol (integer form).
@@ -80,6 +88,8 @@ pub struct FrameReceiverQ15<const N: usize, const K: usize, const M: usize, cons
     fft: Q15Fft<N>,
     nco: NcoQ15,
     dc: Cq15,
+    /// DC blocker state, Q15 with 16 extra fractional bits.
+    dc_track: (i64, i64),
     ring: [Cq15; R],
     seen: u64,
     state: State,
@@ -111,6 +121,7 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiv
             fft: Q15Fft::new(),
             nco: NcoQ15::new(),
             dc: Cq15::ZERO,
+            dc_track: (0, 0),
             ring: [Cq15::ZERO; R],
             seen: 0,
             state: State::Searching,
@@ -150,14 +161,15 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiv
         let n_len = N as u64;
         let ns = self.numerology.symbol_len() as u64;
         let cp = self.numerology.cp_len() as u64;
-        for (i, &x) in samples.iter().enumerate() {
+        for &x0 in samples.iter() {
+            let x = self.dc_block(x0);
             if let Some(slot) = self.ring.get_mut((self.seen % R as u64) as usize) {
                 *slot = x;
             }
             self.seen += 1;
             match self.state {
                 State::Searching => {
-                    if let Some(d) = self.acq.push(samples.get(i..=i).unwrap_or_default())? {
+                    if let Some(d) = self.acq.push(core::slice::from_ref(&x))? {
                         self.state = State::WaitB {
                             w: self.acq_origin + d.window_start,
                             frac_q31: d.cfo_fraction_q31,
@@ -272,6 +284,23 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiv
             }
         }
         Ok(())
+    }
+
+    fn dc_block(&mut self, x: Cq15) -> Cq15 {
+        let k = u32::from(self.config.dc_block_shift);
+        if k == 0 || k > 30 {
+            return x;
+        }
+        let (dr, di) = self.dc_track;
+        let (xr, xi) = (i64::from(x.re) << 16, i64::from(x.im) << 16);
+        let dr = dr + ((xr - dr) >> k);
+        let di = di + ((xi - di) >> k);
+        self.dc_track = (dr, di);
+        let round = |v: i64| crate::fixed_math::shift_round(v, 16);
+        Cq15::new(
+            crate::fixed_math::sat16_64(i64::from(x.re) - round(dr)),
+            crate::fixed_math::sat16_64(i64::from(x.im) - round(di)),
+        )
     }
 
     fn restart(&mut self) {

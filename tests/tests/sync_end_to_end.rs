@@ -340,10 +340,9 @@ fn streaming_frame_receiver_is_within_1_db_of_ideal_sync() {
 }
 
 /// The same captures as Q15 samples (about −20 dBFS) through the integer-only
-/// `FrameReceiverQ15`. (No DC offset here: a DC offset comparable to the noise raises the
-/// Schmidl & Cox metric before the frame and must be blocked before acquisition; the frame
-/// receiver only removes the DC it estimates on the preamble.)
-fn run_frame_receiver_q15(es_n0_db: f64, frames: usize, seed: u64) -> (Vec<f64>, usize) {
+/// `FrameReceiverQ15`; with `dc`, a DC offset of 0.01 − 0.005j full scale (−37 dBFS, about
+/// the noise level) is added at the ADC and the receiver's DC blocker is on.
+fn run_frame_receiver_q15(es_n0_db: f64, frames: usize, seed: u64, dc: bool) -> (Vec<f64>, usize) {
     use flatbin::acquire_q15::AcquirerQ15;
     use flatbin::frame_q15::{FrameConfigQ15, FrameReceiverQ15};
     use flatbin::gain_dc::target_amplitude_q30;
@@ -372,6 +371,7 @@ fn run_frame_receiver_q15(es_n0_db: f64, frames: usize, seed: u64) -> (Vec<f64>,
         modulation: m,
         max_integer_cfo: 4,
         first_path_q16: 6554,
+        dc_block_shift: if dc { 6 } else { 0 },
     };
     let _ = AcquirerQ15::<N>::new(&nu, fc.threshold_q16).unwrap();
     let mut tx = Transmitter::new(nu, MicroFft::<N>::new()).unwrap();
@@ -409,7 +409,19 @@ fn run_frame_receiver_q15(es_n0_db: f64, frames: usize, seed: u64) -> (Vec<f64>,
         );
         r = resample(&r, 20.0);
         add_awgn(&mut rng, &mut r, n0);
-        let q: Vec<Cq15> = r.iter().map(|v| Cq15::from_cf32(v * 0.1)).collect();
+        let q: Vec<Cq15> = r
+            .iter()
+            .map(|v| {
+                Cq15::from_cf32(
+                    v * 0.1
+                        + if dc {
+                            Cf32::new(0.01, -0.005)
+                        } else {
+                            Cf32::default()
+                        },
+                )
+            })
+            .collect();
         let mut fr =
             Box::new(FrameReceiverQ15::<N, 4, 4, 512>::new(&nu, design.clone(), fc).unwrap());
         let (mut errors, mut bits, mut got) = (0u64, 0u64, 0usize);
@@ -442,13 +454,33 @@ fn integer_frame_receiver_is_within_1_db_of_ideal_sync() {
     // As above, integers only from the Q15 samples on.
     let s = 20.0;
     let frames = 2000;
-    let (sync, missed) = run_frame_receiver_q15(s, frames, 141);
+    let (sync, missed) = run_frame_receiver_q15(s, frames, 141, false);
     let (ideal, _) = run(s - 1.0, frames, false, 122);
     let (b_sync, v_sync) = mean_var(&sync);
     let (b_ideal, v_ideal) = mean_var(&ideal);
     let margin = 4.0 * (v_sync / sync.len() as f64 + v_ideal / ideal.len() as f64).sqrt();
     println!(
         "FrameReceiverQ15, QPSK at {s} dB: BER {b_sync:.3e} over {} frames ({missed} missed or incomplete); ideal sync at {} dB {b_ideal:.3e} (margin {margin:.1e})",
+        sync.len(),
+        s - 1.0
+    );
+    assert!(missed * 100 <= frames);
+    assert!(b_sync <= b_ideal + margin);
+}
+
+#[test]
+fn integer_frame_receiver_with_a_dc_offset_and_the_dc_blocker() {
+    // A DC offset at the noise level raises the Schmidl & Cox metric before the frame; with the
+    // DC blocker on, the frame receiver is again within 1 dB of ideal sync.
+    let s = 20.0;
+    let frames = 2000;
+    let (sync, missed) = run_frame_receiver_q15(s, frames, 151, true);
+    let (ideal, _) = run(s - 1.0, frames, false, 122);
+    let (b_sync, v_sync) = mean_var(&sync);
+    let (b_ideal, v_ideal) = mean_var(&ideal);
+    let margin = 4.0 * (v_sync / sync.len() as f64 + v_ideal / ideal.len() as f64).sqrt();
+    println!(
+        "FrameReceiverQ15 with DC offset and blocker, QPSK at {s} dB: BER {b_sync:.3e} over {} frames ({missed} missed); ideal sync at {} dB {b_ideal:.3e} (margin {margin:.1e})",
         sync.len(),
         s - 1.0
     );
