@@ -80,6 +80,7 @@ pub mod acquire;
 pub mod acquire_q15;
 pub mod correlation;
 pub mod cp_sync;
+pub mod cp_sync_q15;
 pub mod demap;
 pub mod equalize;
 pub mod error;
