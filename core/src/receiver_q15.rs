@@ -270,6 +270,8 @@ pub struct ReceiverQ15<F, const N: usize, const K: usize, const M: usize> {
     fft: F,
     design: DesignQ15<N, K, M>,
     gain: DigitalGain,
+    /// Timing correction: the window started this many samples late (Q16), undone per bin.
+    timing_q16: i32,
     bins: [Cq15; N],
     /// LS history per lattice bin (newest at `head`) and the block exponent of each entry.
     history: [[Cq15; M]; N],
@@ -322,6 +324,7 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
             fft,
             design,
             gain: DigitalGain::UNITY,
+            timing_q16: 0,
             bins: [Cq15::ZERO; N],
             history: [[Cq15::ZERO; M]; N],
             history_exp: [[0; M]; N],
@@ -336,6 +339,14 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
             estimate_exp: 0,
             clipped: 0,
         })
+    }
+
+    /// Sets the timing correction for the next symbols: their FFT windows started `delay_q16`
+    /// / 65536 samples late (the sub-sample drift of a fast sampling clock left after sample
+    /// slips; negative: early). Each used bin `k` is rotated by `e^{−j2πk·delay/N}` (DFT shift
+    /// theorem) with the NCO's sine table, before estimation.
+    pub fn set_timing_offset_q16(&mut self, delay_q16: i32) {
+        self.timing_q16 = delay_q16;
     }
 
     /// Sets the digital gain for the frame.
@@ -401,6 +412,9 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
             .gain
             .apply(samples.get(cp..).unwrap_or_default(), &mut self.bins);
         let e_b = self.fft.forward(&mut self.bins);
+        if self.timing_q16 != 0 {
+            self.rotate_bins();
+        }
         // 2. LS into the history, 3. time stage, 4. frequency stage.
         self.ls(symbol, e_b);
         self.time_stage(symbol);
@@ -440,6 +454,25 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
             llrs: count * bits,
             clipped: self.clipped,
         })
+    }
+
+    fn rotate_bins(&mut self) {
+        let nu = self.numerology;
+        let log2_n = N.trailing_zeros() as i32;
+        for u in 0..nu.used_len() {
+            let k = i64::from(nu.logical_bin(u));
+            // Phase −k·δ/N turns, ×2^32: −k·δ_q16·2^16 / N.
+            let phase = shift_round(-k * i64::from(self.timing_q16) * 65536, log2_n) as u32;
+            let (c, sn) = crate::nco::cos_sin_q15(phase);
+            if let Some(b) = self.bins.get_mut(nu.fft_index(u)) {
+                let (br, bi) = (i64::from(b.re), i64::from(b.im));
+                let (c, sn) = (i64::from(c), i64::from(sn));
+                *b = Cq15::new(
+                    sat16_64(shift_round(br * c - bi * sn, 15)),
+                    sat16_64(shift_round(br * sn + bi * c, 15)),
+                );
+            }
+        }
     }
 
     fn ls(&mut self, symbol: u32, e_b: i32) {
