@@ -103,6 +103,7 @@ pub mod preamble;
 pub mod receiver;
 pub mod receiver_q15;
 pub mod sco;
+pub mod sco_q15;
 pub mod sync_q15;
 pub mod transmit;
 pub mod transmit_q15;

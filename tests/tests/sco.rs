@@ -120,3 +120,84 @@ fn rotation_undoes_an_early_window() {
         assert!((early[i] - on_time[i]).norm() < 1e-4, "bin {i}");
     }
 }
+
+#[test]
+fn integer_sco_estimate_meets_the_same_bound() {
+    // The integer estimator on Q15 FFT output of the same kind of frames (−12 dBFS): its spread
+    // over 200 trials within 1.5× the least-squares bound, as the f32 one.
+    use flatbin::fft_q15::Q15Fft;
+    use flatbin::fixed::Cq15;
+    use flatbin::sco_q15::ScoEstimatorQ15;
+    let nu = Numerology::new(NumerologyParams {
+        fft_len: N,
+        cp_len: N / 8,
+        guard_low_bins: N / 16,
+        guard_high_bins: N / 16 - 1,
+        ..NumerologyParams::default()
+    })
+    .unwrap();
+    let ns = nu.symbol_len();
+    let zeta = 20e-6;
+    let n0 = 0.01;
+    let symbols = 101usize;
+    let mut tx = Transmitter::new(nu, MicroFft::<N>::new()).unwrap();
+    let mut fft = Q15Fft::<N>::new();
+    let mut rng = stream_rng(112, 0);
+    let trials = 200;
+    let mut est = Vec::with_capacity(trials);
+    for _ in 0..trials {
+        let mut x = Vec::with_capacity(symbols * ns + ns);
+        for sym in 0..symbols as u32 {
+            let bits: Vec<u8> = (0..tx.bits_per_ofdm_symbol(Modulation::Qpsk, sym))
+                .map(|_| rng.random::<u8>() & 1)
+                .collect();
+            let mut s = vec![Cf32::default(); ns];
+            tx.modulate(Modulation::Qpsk, &bits, sym, &mut s).unwrap();
+            x.extend_from_slice(&s);
+        }
+        x.extend(std::iter::repeat_n(Cf32::default(), ns));
+        let mut r = resample(&x, zeta * 1e6);
+        add_awgn(&mut rng, &mut r, n0);
+        let p: f64 = r.iter().map(|v| f64::from(v.norm_sqr())).sum::<f64>() / r.len() as f64;
+        let scale = (10f64.powf(-1.2) / p).sqrt() as f32;
+        let mut sco = ScoEstimatorQ15::<N>::new(&nu).unwrap();
+        for sym in 0..symbols {
+            let start = sym * ns + nu.cp_len() / 2;
+            let mut bins = [Cq15::ZERO; N];
+            for (b, v) in bins.iter_mut().zip(&r[start..start + N]) {
+                *b = Cq15::from_cf32(v * scale);
+            }
+            fft.forward(&mut bins);
+            sco.update(&bins, sym as u32).unwrap();
+        }
+        est.push(f64::from(sco.estimate_q32().unwrap()) / 2f64.powi(32));
+    }
+    let mean = est.iter().sum::<f64>() / trials as f64;
+    let sd = (est.iter().map(|e| (e - mean).powi(2)).sum::<f64>() / (trials - 1) as f64).sqrt();
+    let ks: Vec<f64> = nu
+        .pilot_bins(0)
+        .map(|i| {
+            if i < N / 2 {
+                i as f64
+            } else {
+                i as f64 - N as f64
+            }
+        })
+        .collect();
+    let k_mean = ks.iter().sum::<f64>() / ks.len() as f64;
+    let sk: f64 = ks.iter().map(|k| (k - k_mean).powi(2)).sum();
+    let ms: Vec<f64> = (1..symbols).map(|m| m as f64).collect();
+    let m_mean = ms.iter().sum::<f64>() / ms.len() as f64;
+    let sm: f64 = ms.iter().map(|m| (m - m_mean).powi(2)).sum();
+    let sigma2 = n0 / (2.0 * f64::from(nu.pilot_amplitude()).powi(2));
+    let bound = N as f64 / (2.0 * std::f64::consts::PI * ns as f64) * (sigma2 / (sk * sm)).sqrt();
+    println!(
+        "integer SCO 20 ppm: mean {:.3} ppm, sd {:.4} ppm, LS bound {:.4} ppm ({:.2}×)",
+        mean * 1e6,
+        sd * 1e6,
+        bound * 1e6,
+        sd / bound
+    );
+    assert!((mean - zeta).abs() <= 4.0 * sd / (trials as f64).sqrt());
+    assert!(sd <= 1.5 * bound);
+}
