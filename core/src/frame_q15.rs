@@ -15,7 +15,13 @@ use crate::modulation::Modulation;
 use crate::nco::{increment_for_cfo_q16, NcoQ15};
 use crate::numerology::Numerology;
 use crate::receiver_q15::{DesignQ15, ReceiverQ15};
+use crate::sco_q15::ScoEstimatorQ15;
 use crate::sync_q15::{first_path_offset_q15, total_cfo_q15};
+
+/// Fewest data symbols in a frame for its SCO estimate to update the correction: the
+/// slope's spread grows as `m^{-3/2}` for fewer symbols, so at 8 it is already 20× that of
+/// a 60-symbol frame (design choice).
+pub const MIN_SCO_SYMBOLS: u32 = 8;
 
 /// Frame settings, all integers.
 #[derive(Clone, Copy, Debug, PartialEq, Eq)]
@@ -46,6 +52,11 @@ pub struct FrameConfigQ15 {
     /// move by whole samples as the drift `ζ·n` grows (sample slips) and the remainder is
     /// rotated out per bin ([`ReceiverQ15::set_timing_offset_q16`]). 0: no correction.
     pub sco_q32: i32,
+    /// Track the clock offset: estimate the residual SCO over each frame
+    /// ([`crate::sco_q15::ScoEstimatorQ15`], fixed pilot combs only; frames of at least
+    /// [`MIN_SCO_SYMBOLS`] data symbols) and add it to the correction of the next frames.
+    /// Ignored (no tracking) when the pilot pattern is not a fixed comb.
+    pub track_sco: bool,
 }
 
 /// One decoded data symbol (integer form).
@@ -93,6 +104,9 @@ pub struct FrameReceiverQ15<const N: usize, const K: usize, const M: usize, cons
     fft: Q15Fft<N>,
     nco: NcoQ15,
     dc: Cq15,
+    /// The clock offset corrected, ζ·2^32 (starts at the configured value).
+    sco_q32: i32,
+    sco: Option<ScoEstimatorQ15<N>>,
     /// DC blocker state, Q15 with 16 extra fractional bits.
     dc_track: (i64, i64),
     ring: [Cq15; R],
@@ -126,6 +140,12 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiv
             fft: Q15Fft::new(),
             nco: NcoQ15::new(),
             dc: Cq15::ZERO,
+            sco_q32: config.sco_q32,
+            sco: if config.track_sco {
+                ScoEstimatorQ15::new(numerology).ok()
+            } else {
+                None
+            },
             dc_track: (0, 0),
             ring: [Cq15::ZERO; R],
             seen: 0,
@@ -245,7 +265,7 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiv
                     cfo_q16,
                 } => {
                     // Sampling-clock drift since the origin: symbols arrive ζ·Δn samples early.
-                    let drift = i64::from(self.config.sco_q32) * (next - origin) as i64;
+                    let drift = i64::from(self.sco_q32) * (next - origin) as i64;
                     let slip = crate::fixed_math::shift_round(drift, 32);
                     let from = (next as i64 - slip).max(0) as u64;
                     if self.seen < from + ns {
@@ -272,6 +292,12 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiv
                         &mut self.sinr,
                         &mut self.llrs,
                     )?;
+                    if let Some(sco) = self.sco.as_mut() {
+                        if symbol == 0 {
+                            sco.reset();
+                        }
+                        let _ = sco.update(self.rx.bins(), symbol);
+                    }
                     on_symbol(SymbolEventQ15 {
                         symbol,
                         equalized: self.eq.get(..counts.data_bins).unwrap_or_default(),
@@ -282,6 +308,14 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiv
                         window_start: from + cp,
                     });
                     if symbol + 1 >= self.config.frame_symbols {
+                        // Fold this frame's residual clock offset into the correction (full
+                        // step: the next frame measures what is left). Frames shorter than
+                        // MIN_SCO_SYMBOLS give too noisy a slope and are skipped.
+                        if let Some(e) = self.sco.as_ref().and_then(|s| s.estimate_q32()) {
+                            if symbol + 1 >= MIN_SCO_SYMBOLS {
+                                self.sco_q32 = self.sco_q32.saturating_add(e);
+                            }
+                        }
                         self.restart();
                     } else {
                         self.state = State::Data {
@@ -295,6 +329,11 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiv
             }
         }
         Ok(())
+    }
+
+    /// The sampling-clock offset currently corrected, ζ·2^32.
+    pub fn sco_q32(&self) -> i32 {
+        self.sco_q32
     }
 
     fn dc_block(&mut self, x: Cq15) -> Cq15 {

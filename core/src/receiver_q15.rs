@@ -371,6 +371,13 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
         )
     }
 
+    /// The latest symbol's FFT output (natural order, after the gain and any timing
+    /// rotation) and its block exponent is the one [`Self::estimate`] is relative to; for
+    /// trackers that read pilots (e.g. [`crate::sco_q15`]).
+    pub fn bins(&self) -> &[Cq15; N] {
+        &self.bins
+    }
+
     /// The design in use.
     pub fn design(&self) -> &DesignQ15<N, K, M> {
         &self.design

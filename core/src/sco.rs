@@ -17,6 +17,11 @@
 //! `σ²/(Σ(k − k̄)² Σ(m − m̄)²)` for independent phase noise of variance `σ²` (linear
 //! regression; common practice). It is accumulated per symbol in O(pilots) with running sums.
 //! Fixed pilot combs only (the same pilot bins in every symbol).
+//!
+//! Each pilot's phase is taken against the symbol's common phasor `Σ_k Y X* (Y₀ X₀*)*`, so
+//! `c_m` may take any value (a residual CFO turns it by whole turns over a frame) without
+//! wrapping some pilots and not others. Valid range: the slope term itself within ±½ turn,
+//! `|ζ|·k_max·m·(N + L)/N < ½` (100 ppm, `k_max` = 28, N = 64, L = 8: 158 symbols).
 
 use crate::error::{ConfigError, ProcessError};
 use crate::numerology::{BinKind, Numerology};
@@ -107,12 +112,24 @@ impl<const N: usize> ScoEstimator<N> {
             self.have_reference = true;
             return Ok(());
         }
+        // The common phasor first (residual CFO and common phase turn every pilot alike);
+        // each pilot's phase is measured against it, so a common phase near ±½ turn cannot
+        // wrap some pilots and not others.
+        let mut c = Cf32::new(0.0, 0.0);
+        for b in nu.bins(symbol).filter(|b| b.kind == BinKind::Pilot) {
+            let x = prbs.next_pilot(1.0);
+            let y = bins.get(b.fft_index).copied().unwrap_or_default();
+            let r = self.reference.get(b.fft_index).copied().unwrap_or_default();
+            c += y * x * r;
+        }
+        let c = c.conj();
+        let mut prbs = Prbs15::for_symbol(nu.params().pilots.seed, symbol);
         let mut a = 0.0f32;
         for b in nu.bins(symbol).filter(|b| b.kind == BinKind::Pilot) {
             let x = prbs.next_pilot(1.0);
             let y = bins.get(b.fft_index).copied().unwrap_or_default();
             let r = self.reference.get(b.fft_index).copied().unwrap_or_default();
-            let z = y * x * r;
+            let z = y * x * r * c;
             let phi = libm::atan2f(z.im, z.re);
             a += (nu.logical_bin(b.used_index) as f32 - self.k_mean) * phi;
         }

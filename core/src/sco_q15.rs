@@ -91,24 +91,32 @@ impl<const N: usize> ScoEstimatorQ15<N> {
             self.have_reference = true;
             return Ok(());
         }
+        // Pass 1: the common phasor Σ z over the pilots (residual CFO and common phase turn
+        // every pilot alike); pass 2 measures each pilot's phase against it, so a common
+        // phase near ±½ turn cannot wrap some pilots and not others.
+        let mut sr: i64 = 0;
+        let mut si: i64 = 0;
+        for b in nu.bins(symbol).filter(|b| b.kind == BinKind::Pilot) {
+            let neg = prbs.next_bit() != 0;
+            let (zr, zi) = self.pilot_product(bins, b.fft_index, neg);
+            sr = sr.saturating_add(zr);
+            si = si.saturating_add(zi);
+        }
+        let big = sr.unsigned_abs().max(si.unsigned_abs());
+        let shift = (64 - big.leading_zeros()).saturating_sub(15);
+        let (cr, ci) = (sr >> shift, si >> shift);
+        let mut prbs = Prbs15::for_symbol(nu.params().pilots.seed, symbol);
         let mut a: i128 = 0;
         for b in nu.bins(symbol).filter(|b| b.kind == BinKind::Pilot) {
             let neg = prbs.next_bit() != 0;
-            let y = bins.get(b.fft_index).copied().unwrap_or_default();
-            let r = self.reference.get(b.fft_index).copied().unwrap_or_default();
-            let (yr, yi, rr, ri) = (
-                i64::from(y.re),
-                i64::from(y.im),
-                i64::from(r.re),
-                i64::from(r.im),
+            let (zr, zi) = self.pilot_product(bins, b.fft_index, neg);
+            // z·conj(c): |z| < 2^32, |c| < 2^15, so the products fit in i64.
+            let (wr, wi) = (
+                zr.saturating_mul(cr).saturating_add(zi.saturating_mul(ci)),
+                zi.saturating_mul(cr).saturating_sub(zr.saturating_mul(ci)),
             );
-            let (mut zr, mut zi) = (yr * rr - yi * ri, yr * ri + yi * rr);
-            if neg {
-                zr = -zr;
-                zi = -zi;
-            }
             // Phase in turns·2^32 as a signed value in [−2^31, 2^31).
-            let phi = i64::from(atan2_turns(zi, zr) as i32);
+            let phi = i64::from(atan2_turns(wi, wr) as i32);
             let k = i64::from(nu.logical_bin(b.used_index));
             a += i128::from(self.n_p * k - self.k1) * i128::from(phi);
         }
@@ -119,6 +127,24 @@ impl<const N: usize> ScoEstimatorQ15<N> {
         self.m1 += m;
         self.m2 += m * m;
         Ok(())
+    }
+
+    /// `y·x·r` for the pilot at `fft_index` (`x = ±1`, `r` the reference), exact in i64.
+    fn pilot_product(&self, bins: &[Cq15; N], fft_index: usize, neg: bool) -> (i64, i64) {
+        let y = bins.get(fft_index).copied().unwrap_or_default();
+        let r = self.reference.get(fft_index).copied().unwrap_or_default();
+        let (yr, yi, rr, ri) = (
+            i64::from(y.re),
+            i64::from(y.im),
+            i64::from(r.re),
+            i64::from(r.im),
+        );
+        let (zr, zi) = (yr * rr - yi * ri, yr * ri + yi * rr);
+        if neg {
+            (-zr, -zi)
+        } else {
+            (zr, zi)
+        }
     }
 
     /// The estimate `ζ·2^32` once two symbols followed the reference.

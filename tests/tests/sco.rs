@@ -201,3 +201,82 @@ fn integer_sco_estimate_meets_the_same_bound() {
     assert!((mean - zeta).abs() <= 4.0 * sd / (trials as f64).sqrt());
     assert!(sd <= 1.5 * bound);
 }
+
+#[test]
+fn a_common_phase_that_wraps_does_not_bend_the_slope() {
+    // A residual CFO turns every pilot of a symbol alike, by whole turns over a frame. The
+    // double-centred slope does not depend on it (the model's c_m, module docs of
+    // flatbin::sco), so each estimator, fed the same 100 ppm frame with a common phase of
+    // 0.3 turn per symbol added, must still land within 4σ of the true offset, σ = 1.5× the
+    // least-squares bound (as above; linear regression, common practice).
+    use flatbin::fft_q15::Q15Fft;
+    use flatbin::fixed::Cq15;
+    use flatbin::sco_q15::ScoEstimatorQ15;
+    const M: usize = 64;
+    let nu = Numerology::new(NumerologyParams::default()).unwrap();
+    let ns = nu.symbol_len();
+    let zeta = 100e-6;
+    let n0 = 0.01;
+    let symbols = 60usize;
+    let mut tx = Transmitter::new(nu, MicroFft::<M>::new()).unwrap();
+    let mut rng = stream_rng(113, 0);
+    let mut x = Vec::new();
+    for sym in 0..symbols as u32 {
+        let bits: Vec<u8> = (0..tx.bits_per_ofdm_symbol(Modulation::Qpsk, sym))
+            .map(|_| rng.random::<u8>() & 1)
+            .collect();
+        let mut s = vec![Cf32::default(); ns];
+        tx.modulate(Modulation::Qpsk, &bits, sym, &mut s).unwrap();
+        x.extend_from_slice(&s);
+    }
+    x.extend(std::iter::repeat_n(Cf32::default(), ns));
+    let mut r = resample(&x, zeta * 1e6);
+    add_awgn(&mut rng, &mut r, n0);
+    let mut fft = MicroFft::<M>::new();
+    let mut fft_q = Q15Fft::<M>::new();
+    let mut f32_est = ScoEstimator::<M>::new(&nu).unwrap();
+    let mut int_est = ScoEstimatorQ15::<M>::new(&nu).unwrap();
+    for sym in 0..symbols {
+        let turn = Cf32::from_polar(1.0, std::f32::consts::TAU * 0.3 * sym as f32);
+        let start = sym * ns + nu.cp_len() / 2;
+        let mut bins: [Cf32; M] = r[start..start + M].try_into().unwrap();
+        for v in bins.iter_mut() {
+            *v *= turn;
+        }
+        let mut bins_q = [Cq15::ZERO; M];
+        for (b, v) in bins_q.iter_mut().zip(&bins) {
+            *b = Cq15::from_cf32(v * 0.1);
+        }
+        fft.forward(&mut bins);
+        fft_q.forward(&mut bins_q);
+        f32_est.update(&bins, sym as u32).unwrap();
+        int_est.update(&bins_q, sym as u32).unwrap();
+    }
+    let ks: Vec<f64> = nu
+        .pilot_bins(0)
+        .map(|i| {
+            if i < M / 2 {
+                i as f64
+            } else {
+                i as f64 - M as f64
+            }
+        })
+        .collect();
+    let k_mean = ks.iter().sum::<f64>() / ks.len() as f64;
+    let sk: f64 = ks.iter().map(|k| (k - k_mean).powi(2)).sum();
+    let ms: Vec<f64> = (1..symbols).map(|m| m as f64).collect();
+    let m_mean = ms.iter().sum::<f64>() / ms.len() as f64;
+    let sm: f64 = ms.iter().map(|m| (m - m_mean).powi(2)).sum();
+    let sigma2 = n0 / (2.0 * f64::from(nu.pilot_amplitude()).powi(2));
+    let bound = M as f64 / (2.0 * std::f64::consts::PI * ns as f64) * (sigma2 / (sk * sm)).sqrt();
+    let a = f64::from(f32_est.estimate().unwrap());
+    let b = f64::from(int_est.estimate_q32().unwrap()) / 2f64.powi(32);
+    println!(
+        "with a wrapping common phase: f32 {:.2} ppm, integer {:.2} ppm (true 100, ±{:.2})",
+        a * 1e6,
+        b * 1e6,
+        6.0 * bound * 1e6
+    );
+    assert!((a - zeta).abs() <= 4.0 * 1.5 * bound);
+    assert!((b - zeta).abs() <= 4.0 * 1.5 * bound);
+}

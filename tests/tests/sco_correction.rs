@@ -60,6 +60,7 @@ fn run(ppm: f64, correct: bool, frames: usize, seed: u64) -> Vec<f64> {
         } else {
             0
         },
+        track_sco: false,
     };
     let mut tx = Transmitter::new(nu, MicroFft::<N>::new()).unwrap();
     let taps = DelayProfile::exponential(0.5 / fs, fs)
@@ -143,4 +144,105 @@ fn sample_slips_and_rotation_undo_a_200_ppm_clock() {
     assert!(b_cor <= b_ref + margin);
     // And the offset did matter (same frames, same noise): the control is worse.
     assert!(b_unc > b_cor);
+}
+
+#[test]
+fn the_clock_offset_is_learnt_over_frames() {
+    // Six frames of 60 symbols in one stream from a transmitter clock 100 ppm off the
+    // receiver's (the whole stream resampled), Es/N0 = 20 dB per bin, flat channel, a receiver
+    // that starts with no correction and `track_sco`. Each frame measures the residual and
+    // adds it, so from the second frame on the correction is the true offset plus one frame's
+    // estimation error: every correction after a frame is within 4σ of 100 ppm, σ the
+    // least-squares bound σ_ζ = N/(2π(N+L)) · sqrt(σ²/(Σ(k−k̄)² Σ(m−m̄)²)) (linear
+    // regression; common practice) times 1.5, the factor the estimator is held to in
+    // tests/sco.rs.
+    let nu = Numerology::new(NumerologyParams::default()).unwrap();
+    let ns = nu.symbol_len();
+    let m = Modulation::Qpsk;
+    let n0 = 0.01;
+    let ppm = 100.0;
+    let est = EstimatorConfig {
+        noise_var: n0 as f32,
+        ..EstimatorConfig::default()
+    };
+    let cfg = ReceiverQ15Config {
+        estimator: est,
+        signal_dbfs: -12.0,
+        ..ReceiverQ15Config::default()
+    };
+    let design =
+        DesignQ15::<N, 4, 4>::new(&nu, &cfg, <Q15Fft<N> as OfdmFft<N>>::RESIDUAL_SCALE).unwrap();
+    let symbols = 60u32;
+    let fc = FrameConfigQ15 {
+        threshold_q16: (Acquirer::<N>::threshold_for(&nu, 1e-5) * 65536.0).round() as u32,
+        target_amplitude_q30: target_amplitude_q30(-12.0),
+        frame_symbols: symbols,
+        modulation: m,
+        max_integer_cfo: 4,
+        first_path_q16: 6554,
+        dc_block_shift: 0,
+        sco_q32: 0,
+        track_sco: true,
+    };
+    let mut tx = Transmitter::new(nu, MicroFft::<N>::new()).unwrap();
+    let mut rng = stream_rng(171, 0);
+    let mut stream = vec![Cf32::default(); 200];
+    let frames = 6;
+    for _ in 0..frames {
+        let mut x = vec![Cf32::default(); 2 * ns];
+        tx.preamble(&mut x).unwrap();
+        for sym in 0..symbols {
+            let b: Vec<u8> = (0..tx.bits_per_ofdm_symbol(m, sym))
+                .map(|_| rng.random::<u8>() & 1)
+                .collect();
+            let mut s = vec![Cf32::default(); ns];
+            tx.modulate(m, &b, sym, &mut s).unwrap();
+            x.extend_from_slice(&s);
+        }
+        stream.extend_from_slice(&x);
+        stream.extend(std::iter::repeat_n(Cf32::default(), 300));
+    }
+    let mut r = resample(&stream, ppm);
+    add_awgn(&mut rng, &mut r, n0);
+    let q: Vec<Cq15> = r.iter().map(|v| Cq15::from_cf32(v * 0.1)).collect();
+    let mut fr = Box::new(FrameReceiverQ15::<N, 4, 4, 512>::new(&nu, design, fc).unwrap());
+    // The correction in force at the start of each frame.
+    let mut at_frame_start = Vec::new();
+    for chunk in q.chunks(37) {
+        let mut started = false;
+        fr.push(chunk, |ev| started |= ev.symbol == 0).unwrap();
+        if started {
+            at_frame_start.push(f64::from(fr.sco_q32()) / 2f64.powi(32) * 1e6);
+        }
+    }
+    at_frame_start.push(f64::from(fr.sco_q32()) / 2f64.powi(32) * 1e6);
+
+    let ks: Vec<f64> = nu
+        .pilot_bins(0)
+        .map(|i| {
+            if i < N / 2 {
+                i as f64
+            } else {
+                i as f64 - N as f64
+            }
+        })
+        .collect();
+    let k_mean = ks.iter().sum::<f64>() / ks.len() as f64;
+    let sk: f64 = ks.iter().map(|k| (k - k_mean).powi(2)).sum();
+    let ms: Vec<f64> = (1..symbols).map(f64::from).collect();
+    let m_mean = ms.iter().sum::<f64>() / ms.len() as f64;
+    let sm: f64 = ms.iter().map(|m| (m - m_mean).powi(2)).sum();
+    let sigma2 = n0 / (2.0 * f64::from(nu.pilot_amplitude()).powi(2));
+    let bound_ppm =
+        N as f64 / (2.0 * std::f64::consts::PI * ns as f64) * (sigma2 / (sk * sm)).sqrt() * 1e6;
+    let tol = 4.0 * 1.5 * bound_ppm;
+    println!(
+        "clock offset learnt (ppm, at each frame start, then at the end): {at_frame_start:.2?}; \
+         true {ppm}, tolerance ±{tol:.2} (LS bound {bound_ppm:.3} ppm)"
+    );
+    assert_eq!(at_frame_start.len(), frames + 1, "every frame detected");
+    assert_eq!(at_frame_start[0], 0.0);
+    for (i, v) in at_frame_start.iter().enumerate().skip(1) {
+        assert!((v - ppm).abs() <= tol, "after frame {i}: {v:.2} ppm");
+    }
 }

@@ -373,6 +373,7 @@ fn run_frame_receiver_q15(es_n0_db: f64, frames: usize, seed: u64, dc: bool) -> 
         first_path_q16: 6554,
         dc_block_shift: if dc { 6 } else { 0 },
         sco_q32: 0,
+        track_sco: false,
     };
     let _ = AcquirerQ15::<N>::new(&nu, fc.threshold_q16).unwrap();
     let mut tx = Transmitter::new(nu, MicroFft::<N>::new()).unwrap();
