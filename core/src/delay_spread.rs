@@ -1,0 +1,1 @@
+//! RMS delay spread from the estimated channel's power delay profile (in progress).

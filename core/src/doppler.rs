@@ -1,0 +1,1 @@
+//! Doppler estimate from the time correlation of pilot channel estimates (in progress).

@@ -1,0 +1,1 @@
+//! Predicted inter-carrier interference from Doppler and residual CFO (in progress).

@@ -1,0 +1,1 @@
+//! Image rejection (IQ imbalance) from mirror-bin statistics (in progress).

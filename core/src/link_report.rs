@@ -1,0 +1,1 @@
+//! The link report: per-symbol and per-frame channel quality (in progress).

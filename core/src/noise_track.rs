@@ -1,0 +1,1 @@
+//! Noise, SNR, EVM and MER, and per-bin noise-plus-interference tracking (in progress).
