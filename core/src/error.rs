@@ -89,6 +89,17 @@ pub enum ConfigError {
         /// FFT size the stage was built for.
         stage: usize,
     },
+    /// A tracker setting is invalid: forgetting factors must satisfy `0 ≤ λ < 1`, ratios
+    /// and thresholds must be finite and within their documented range.
+    TrackerSetting,
+    /// A const-generic capacity of a stage is smaller than the numerology needs (e.g. pilots
+    /// per symbol, or history symbols for the lags a stage uses).
+    CapacityTooSmall {
+        /// Elements the numerology needs.
+        needed: usize,
+        /// Elements the stage was built to hold.
+        capacity: usize,
+    },
 }
 
 impl fmt::Display for ConfigError {
@@ -104,6 +115,14 @@ impl fmt::Display for ConfigError {
                 "cyclic prefix of {cp_len} samples is not shorter than the FFT size {fft_len}"
             ),
             Self::SampleRateInvalid => f.write_str("sample rate must be finite and positive"),
+            Self::CapacityTooSmall { needed, capacity } => write!(
+                f,
+                "stage capacity {capacity} is below the {needed} elements the numerology needs"
+            ),
+            Self::TrackerSetting => f.write_str(
+                "tracker setting invalid: forgetting factor must be in [0, 1), ratios and \
+                 thresholds finite and within their documented range",
+            ),
             Self::GuardBandInvalid {
                 guard_low_bins,
                 guard_high_bins,
@@ -188,6 +207,11 @@ pub enum ProcessError {
     },
     /// A channel-state weight (post-equalization SNR) was negative or not finite.
     InvalidWeight,
+    /// A finite value outside the range the call accepts (each call documents its range).
+    OutOfRange {
+        /// Index of the offending element, or the position of a scalar argument.
+        index: usize,
+    },
 }
 
 impl fmt::Display for ProcessError {
@@ -203,6 +227,9 @@ impl fmt::Display for ProcessError {
             Self::InvalidBit { index } => write!(f, "bit at index {index} is neither 0 nor 1"),
             Self::InvalidWeight => {
                 f.write_str("channel-state weight must be finite and non-negative")
+            }
+            Self::OutOfRange { index } => {
+                write!(f, "value at index {index} is outside the accepted range")
             }
         }
     }

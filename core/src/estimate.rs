@@ -507,6 +507,57 @@ impl<const N: usize, const K: usize, const M: usize> ChannelEstimator<N, K, M> {
         ))
     }
 
+    /// The estimator seen from a pilot of a fixed comb (used bin `used_index`), in steady
+    /// state, for noise measurement from pilot residuals: returns `(g, c)`.
+    ///
+    /// * `g` is the estimate's gain on a channel that is constant across its taps,
+    ///   `g = (Σ w)(Σ t)` for frequency taps `w` and time weights `t`: LMMSE shrinks towards
+    ///   zero, so `Ĥ_p/g` rather than `Ĥ_p` is compared with the pilot, or the shrinkage
+    ///   `|1 − g|²|H|²` would read as noise at high SNR.
+    /// * `c` is the noise factor of the residual `Z_p − Ĥ_p/g`, whose noise variance is
+    ///   `c·σ²` (σ² that of one LS value) because `Ĥ_p` holds `Z_p` itself with weight
+    ///   `a = w_p t₀`: `c = |1 − a/g|² + (Σ|w|²)(Σt²)/|g|² − |a/g|²` (independent LS errors;
+    ///   linear estimation, common practice).
+    ///
+    /// None for a bin that is not on the pilot lattice or a degenerate design.
+    pub fn pilot_residual_model(&self, used_index: usize) -> Option<(Cf32, f32)> {
+        let j = usize::from(*self.lattice_of.get(used_index)?);
+        if j == usize::from(NOT_LATTICE) {
+            return None;
+        }
+        let (first, w) = self.freq_taps(used_index)?;
+        let own = j
+            .checked_sub(first)
+            .and_then(|i| w.get(i))
+            .copied()
+            .unwrap_or_default();
+        let w_sum = w.iter().fold(Cf32::new(0.0, 0.0), |acc, v| acc + v);
+        let w2: f32 = w.iter().map(|v| v.norm_sqr()).sum();
+        let (t0, t_sum, t2) = match self.config.time {
+            TimeFilter::Latest => (1.0, 1.0, 1.0),
+            TimeFilter::Forgetting { lambda } => {
+                ((1.0 - lambda), 1.0, (1.0 - lambda) / (1.0 + lambda))
+            }
+            TimeFilter::Lmmse => {
+                let every = self.every_symbol.get(j).copied().unwrap_or(true);
+                let t = self.time_weights(every, M, 0)?;
+                (
+                    t.first().copied().unwrap_or(0.0),
+                    t.iter().sum(),
+                    t.iter().map(|v| v * v).sum(),
+                )
+            }
+        };
+        let g = w_sum * t_sum;
+        let g2 = g.norm_sqr();
+        if !(g2.is_finite() && g2 > 1e-6) {
+            return None;
+        }
+        let a = own * t0 / g;
+        let c = (Cf32::new(1.0, 0.0) - a).norm_sqr() + w2 * t2 / g2 - a.norm_sqr();
+        (c.is_finite() && c > 0.0).then_some((g, c))
+    }
+
     /// Used index of lattice bin `j`.
     pub fn lattice_bin(&self, j: usize) -> Option<usize> {
         (j < self.lattice_len).then(|| self.lattice.get(j).map(|&u| usize::from(u)))?

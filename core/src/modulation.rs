@@ -92,6 +92,25 @@ impl Modulation {
     }
 }
 
+impl Modulation {
+    /// The constellation point nearest to `x` (hard decision; unit-energy grid).
+    pub fn slice(self, x: crate::Cf32) -> crate::Cf32 {
+        let a = self.axis_scale();
+        let top = ((1usize << self.bits_per_axis()) - 1) as f32;
+        // Nearest odd integer level in [−top, top], in grid units.
+        let level = |v: f32| -> f32 {
+            let u = if v.is_finite() { v / a } else { 0.0 };
+            let odd = 2.0 * libm::floorf(u * 0.5) + 1.0;
+            odd.clamp(-top, top) * a
+        };
+        if self == Self::Bpsk {
+            crate::Cf32::new(level(x.re), 0.0)
+        } else {
+            crate::Cf32::new(level(x.re), level(x.im))
+        }
+    }
+}
+
 /// Gray code of `i`.
 pub(crate) const fn gray(i: usize) -> usize {
     i ^ (i >> 1)
@@ -118,6 +137,31 @@ fn pam_level(bits: &[u8]) -> f32 {
 
 #[cfg(test)]
 mod tests {
+
+    #[test]
+    fn slicing_returns_the_nearest_constellation_point() {
+        // Every point, nudged by less than half the grid step in each direction, slices back
+        // to itself; far outside the grid it slices to the corner (nearest-point rule; common
+        // practice).
+        for m in Modulation::ALL {
+            let a = m.axis_scale();
+            let bits = m.bits_per_symbol();
+            for word in 0..1usize << bits {
+                let b: [u8; 8] = core::array::from_fn(|i| ((word >> i) & 1) as u8);
+                let p = m.map(&b[..bits]).unwrap();
+                for (dx, dy) in [(0.9, 0.9), (-0.9, 0.3), (0.2, -0.95)] {
+                    let q = p + crate::Cf32::new(
+                        dx * a,
+                        if m == Modulation::Bpsk { 0.0 } else { dy * a },
+                    );
+                    assert_eq!(m.slice(q), p, "{m:?} word {word}");
+                }
+            }
+        }
+        let far = Modulation::Qam16.slice(crate::Cf32::new(10.0, -10.0));
+        let c = 3.0 * Modulation::Qam16.axis_scale();
+        assert_eq!(far, crate::Cf32::new(c, -c));
+    }
     use super::*;
 
     #[test]

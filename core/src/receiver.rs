@@ -52,6 +52,10 @@ pub struct Receiver<F, const N: usize, const K: usize, const M: usize> {
     estimator: ChannelEstimator<N, K, M>,
     config: ReceiverConfig,
     bins: [Cf32; N],
+    /// Noise-plus-interference variance per used bin (the LLR weighting's N0).
+    noise: [f32; N],
+    /// The common phase applied to the latest symbol's estimate.
+    rot: Cf32,
 }
 
 impl<F: OfdmFft<N, Sample = Cf32>, const N: usize, const K: usize, const M: usize>
@@ -69,7 +73,46 @@ impl<F: OfdmFft<N, Sample = Cf32>, const N: usize, const K: usize, const M: usiz
             estimator: ChannelEstimator::new(numerology, config.estimator)?,
             config,
             bins: [Cf32::new(0.0, 0.0); N],
+            noise: [config.estimator.noise_var; N],
+            rot: Cf32::new(1.0, 0.0),
         })
+    }
+
+    /// Sets the noise-plus-interference variance of each used bin (ascending frequency, at
+    /// least `used_len` values, unit-energy data: N0 per bin) that weights the LLRs from now
+    /// on, e.g. from [`crate::noise_track::NoiseTracker::bin_noise`]. Errors (nothing changed):
+    /// too short, or a value that is not finite and positive.
+    pub fn set_bin_noise(&mut self, per_used_bin: &[f32]) -> Result<(), ProcessError> {
+        let used = self.numerology.used_len();
+        let v = per_used_bin.get(..used).ok_or(ProcessError::BufferLength {
+            expected: used,
+            actual: per_used_bin.len(),
+        })?;
+        if let Some(index) = v.iter().position(|x| !(x.is_finite() && *x > 0.0)) {
+            return Err(ProcessError::NonFinite { index });
+        }
+        for (d, s) in self.noise.iter_mut().zip(v) {
+            *d = *s;
+        }
+        Ok(())
+    }
+
+    /// Back to one noise variance for every bin (the configured `noise_var`).
+    pub fn clear_bin_noise(&mut self) {
+        self.noise = [self.config.estimator.noise_var; N];
+    }
+
+    /// The noise-plus-interference variance per used bin in use.
+    pub fn bin_noise(&self) -> &[f32] {
+        self.noise
+            .get(..self.numerology.used_len())
+            .unwrap_or_default()
+    }
+
+    /// The common phase (unit phasor) applied to the channel estimate of the latest symbol
+    /// (1 when CPE correction is off).
+    pub fn common_phase(&self) -> Cf32 {
+        self.rot
     }
 
     /// The channel estimator (its latest estimate and predicted MSE per used bin).
@@ -184,13 +227,18 @@ impl<F: OfdmFft<N, Sample = Cf32>, const N: usize, const K: usize, const M: usiz
         } else {
             Cf32::new(1.0, 0.0)
         };
-        let n0 = self.config.estimator.noise_var;
+        self.rot = rot;
         let bits = modulation.bits_per_symbol();
         let mut count = 0usize;
         for b in nu.bins(symbol).filter(|b| b.kind == BinKind::Data) {
             let y = bins.get(b.fft_index).copied().unwrap_or_default();
             let hk = h.get(b.used_index).copied().unwrap_or_default() * rot;
             let e = mse.get(b.used_index).copied().unwrap_or(1.0);
+            let n0 = self
+                .noise
+                .get(b.used_index)
+                .copied()
+                .unwrap_or(self.config.estimator.noise_var);
             let (x, s) = equalize(self.config.equalizer, y, hk, n0, e);
             if let (Some(xo), Some(so)) = (equalized.get_mut(count), sinr.get_mut(count)) {
                 *xo = x;
