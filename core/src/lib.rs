@@ -81,6 +81,7 @@ pub mod acquire_q15;
 pub mod correlation;
 pub mod cp_sync;
 pub mod cp_sync_q15;
+pub mod dd_bias;
 pub mod delay_spread;
 pub mod demap;
 pub mod doppler;
