@@ -60,11 +60,15 @@
 //!
 //! ## Valid range
 //!
-//! The spread must be well below the alias period `N/D`; the estimate is unbiased for any
-//! spread whose profile lies inside the moment window, and its precision is limited by the
-//! number of *independent* channel realisations averaged (frames far apart in time, or fast
-//! fading), not by the number of symbols: symbols within one coherence time only average the
-//! noise.
+//! The channel (plus the kernel's tail) must lie inside the moment window and well below the
+//! alias period `N/D`; then the mean and the spread are unbiased. Their precision is limited
+//! by the number of *independent* channel realisations averaged (frames far apart in time,
+//! or fast fading), not by the number of symbols: symbols within one coherence time only
+//! average the noise. Measured at N = 256, D = 4, Es/N0 = 20 dB, exponential profiles of 1–4
+//! samples, 50 realisations × 16 symbols, measured floor: standard deviation 2.6–4.5 % of the
+//! spread, no bias beyond the Monte Carlo error (`tests/delay_spread.rs`). The maximum
+//! significant delay resolves to the kernel's extent (2 samples there) plus the PDP's own
+//! fluctuation.
 
 use crate::error::{ConfigError, ProcessError};
 use crate::fft::OfdmFft;
@@ -334,12 +338,12 @@ impl<F: OfdmFft<N, Sample = Cf32>, const N: usize> DelaySpreadEstimator<F, N> {
     }
 
     /// Runs the floor-and-moments procedure on the window's own kernel, averaged over the
-    /// pilot pattern's phases.
+    /// pilot pattern's phases (accumulated in the PDP sums, which are cleared afterwards).
     fn measure_kernel(&mut self) {
         let nu = self.numerology;
         let period = nu.pattern_period().max(1);
-        let mut kern = [0.0f32; N];
         let mut noise_gain = 0.0f32;
+        self.pdp = [0.0; N];
         for phase in 0..period {
             self.scratch = [Cf32::new(0.0, 0.0); N];
             for b in nu.bins(phase as u32).filter(|b| b.kind == BinKind::Pilot) {
@@ -350,27 +354,24 @@ impl<F: OfdmFft<N, Sample = Cf32>, const N: usize> DelaySpreadEstimator<F, N> {
                 noise_gain += w * w;
             }
             let scale = self.inverse_scale_sq();
-            for (k, s) in kern.iter_mut().zip(self.scratch.iter()) {
+            for (k, s) in self.pdp.iter_mut().zip(self.scratch.iter()) {
                 *k += s.norm_sqr() * scale;
             }
         }
         let inv_period = 1.0 / period as f32;
-        for k in kern.iter_mut() {
-            *k *= inv_period;
-        }
-        let floor = self.region_mean(&kern);
-        let (m0, m1, m2) = self.moments(&kern, floor);
+        let floor = self.region_mean(&self.pdp) * inv_period;
+        let (m0, m1, m2) = self.moments(&self.pdp, inv_period, floor);
         let (mean, var) = if m0 > 0.0 {
             let mean = m1 / m0;
             (mean, m2 / m0 - mean * mean)
         } else {
             (0.0, 0.0)
         };
-        let peak = kern.first().copied().unwrap_or(0.0);
-        let level = peak * threshold_linear(self.config.max_delay_threshold_db);
+        let kern = |i: usize| self.pdp.get(i).copied().unwrap_or(0.0) * inv_period;
+        let level = kern(0) * threshold_linear(self.config.max_delay_threshold_db);
         let extent = self
             .moment_delays()
-            .filter(|&(d, i)| d >= 0 && kern.get(i).copied().unwrap_or(0.0) - floor >= level)
+            .filter(|&(d, i)| d >= 0 && kern(i) - floor >= level)
             .map(|(d, _)| d)
             .max()
             .unwrap_or(0);
@@ -381,6 +382,7 @@ impl<F: OfdmFft<N, Sample = Cf32>, const N: usize> DelaySpreadEstimator<F, N> {
             extent,
             noise_gain: noise_gain * inv_period / N as f32,
         };
+        self.pdp = [0.0; N];
     }
 
     /// Inverse FFT of the scratch buffer; returns the factor that makes `|·|²` unitary.
@@ -400,10 +402,11 @@ impl<F: OfdmFft<N, Sample = Cf32>, const N: usize> DelaySpreadEstimator<F, N> {
         sum / len as f32
     }
 
-    fn moments(&self, p: &[f32; N], floor: f32) -> (f32, f32, f32) {
+    /// Moments `Σ n^j (p(n)·scale − floor)` over the moment window, `j = 0, 1, 2`.
+    fn moments(&self, p: &[f32; N], scale: f32, floor: f32) -> (f32, f32, f32) {
         self.moment_delays()
             .fold((0.0, 0.0, 0.0), |(m0, m1, m2), (d, i)| {
-                let v = p.get(i).copied().unwrap_or(0.0) - floor;
+                let v = p.get(i).copied().unwrap_or(0.0) * scale - floor;
                 let x = d as f32;
                 (m0 + v, m1 + x * v, m2 + x * x * v)
             })
@@ -475,24 +478,16 @@ impl<F: OfdmFft<N, Sample = Cf32>, const N: usize> DelaySpreadEstimator<F, N> {
             return None;
         }
         let s = self.symbols as f32;
-        let mut avg = [0.0f32; N];
-        for i in self
-            .moment_delays()
-            .map(|(_, i)| i)
-            .chain(self.noise_delays())
-        {
-            if let (Some(o), Some(p)) = (avg.get_mut(i), self.pdp.get(i)) {
-                *o = p / s;
-            }
-        }
+        let inv_s = 1.0 / s;
+        let avg = |i: usize| self.pdp.get(i).copied().unwrap_or(0.0) * inv_s;
         let floor = match self.config.noise {
             NoiseFloor::Known { noise_var } => {
                 let a = self.numerology.pilot_amplitude();
                 noise_var / (a * a) * self.kernel.noise_gain
             }
-            NoiseFloor::Measured { .. } => self.region_mean(&avg),
+            NoiseFloor::Measured { .. } => self.region_mean(&self.pdp) * inv_s,
         };
-        let (m0, m1, m2) = self.moments(&avg, floor);
+        let (m0, m1, m2) = self.moments(&self.pdp, inv_s, floor);
         if !(m0 > 0.0 && m0.is_finite() && m1.is_finite() && m2.is_finite()) {
             return None;
         }
@@ -503,13 +498,13 @@ impl<F: OfdmFft<N, Sample = Cf32>, const N: usize> DelaySpreadEstimator<F, N> {
         // deviations of the averaged noise (an exponential variable per symbol: sd = f/√S).
         let peak = self
             .moment_delays()
-            .map(|(_, i)| avg.get(i).copied().unwrap_or(0.0) - floor)
+            .map(|(_, i)| avg(i) - floor)
             .fold(0.0f32, f32::max);
         let level = (peak * threshold_linear(self.config.max_delay_threshold_db))
             .max(4.0 * floor / libm::sqrtf(s));
         let last = self
             .moment_delays()
-            .filter(|&(_, i)| avg.get(i).copied().unwrap_or(0.0) - floor >= level)
+            .filter(|&(_, i)| avg(i) - floor >= level)
             .map(|(d, _)| d)
             .max()
             .unwrap_or(0);

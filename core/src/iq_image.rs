@@ -38,10 +38,12 @@
 //!   (`n` pairs × symbols): 1e5 pair-symbols resolve up to about 46 dB. Below the ceiling the
 //!   estimate has a standard error of about `sqrt(Q/2)/P` in `ρ`.
 //! * **Noise added after the imbalance** (baseband, ADC) is circular: it adds to `P` but not
-//!   to `C`, so the estimate of IRR is high by `20·log10(1 + N/S')` dB, `S'` the mean bin
-//!   power before that noise (0.04 dB at 20 dB SNR, 0.8 dB at 10 dB). Noise at the mixer's
-//!   input (thermal, LNA) is imbalanced like the signal and biases nothing. Either way the
-//!   noise lowers the ceiling through `Q/P²`.
+//!   to `C`, so the estimate of IRR reads high by `20·log10(1 + N/S')` dB, `S'` the mean bin
+//!   power before that noise (0.09 dB at 20 dB SNR, 0.8 dB at 10 dB), and an image must be
+//!   `1 + N/S'` times larger in amplitude to be resolved. Noise at the mixer's input
+//!   (thermal, LNA) is imbalanced like the signal and changes neither. The ceiling in terms of
+//!   `Q/P²` depends on the number of pairs and on the bins' fourth moment (fading raises it
+//!   up to twofold: `E|H|⁴ = 2` for Rayleigh), not on the noise level.
 //! * **Phase stability.** `C` is summed coherently over symbols: its phase `arg(μν)` must
 //!   not turn while averaging. A carrier offset corrected *after* the mixer turns the image
 //!   by `−4πε(N+L)/N` per symbol (ε in subcarrier spacings): average only over spans where
