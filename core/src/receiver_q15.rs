@@ -273,6 +273,8 @@ pub struct ReceiverQ15<F, const N: usize, const K: usize, const M: usize> {
     /// Timing correction: the window started this many samples late (Q16), undone per bin.
     timing_q16: i32,
     bins: [Cq15; N],
+    /// Block exponent of `bins`.
+    bins_exp: i32,
     /// LS history per lattice bin (newest at `head`) and the block exponent of each entry.
     history: [[Cq15; M]; N],
     history_exp: [[i8; M]; N],
@@ -326,6 +328,7 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
             gain: DigitalGain::UNITY,
             timing_q16: 0,
             bins: [Cq15::ZERO; N],
+            bins_exp: 0,
             history: [[Cq15::ZERO; M]; N],
             history_exp: [[0; M]; N],
             head: [0; N],
@@ -372,10 +375,16 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
     }
 
     /// The latest symbol's FFT output (natural order, after the gain and any timing
-    /// rotation) and its block exponent is the one [`Self::estimate`] is relative to; for
-    /// trackers that read pilots (e.g. [`crate::sco_q15`]).
+    /// rotation); for trackers that read only phases (e.g. [`crate::sco_q15`]).
     pub fn bins(&self) -> &[Cq15; N] {
         &self.bins
+    }
+
+    /// The latest symbol's FFT output with its block exponent `e`: the unitary DFT of the
+    /// gained input (Q15 fractions) is `bins[k] · 2^e · F::RESIDUAL_SCALE` (a constant for
+    /// the FFT size), for trackers that compare powers across symbols.
+    pub fn bins_with_exponent(&self) -> (&[Cq15; N], i32) {
+        (&self.bins, self.bins_exp)
     }
 
     /// The design in use.
@@ -419,6 +428,7 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
             .gain
             .apply(samples.get(cp..).unwrap_or_default(), &mut self.bins);
         let e_b = self.fft.forward(&mut self.bins);
+        self.bins_exp = e_b;
         if self.timing_q16 != 0 {
             self.rotate_bins();
         }
