@@ -107,7 +107,7 @@ pub const MAX_LAG_LEVELS: usize = 8;
 /// Largest accepted magnitude of a pilot bin's real or imaginary part (keeps every product
 /// and sum finite in f32).
 pub const MAX_BIN_MAGNITUDE: f32 = 1.0e9;
-/// Smallest lag-`u` correlation coefficient `|R(u)|/R(0)` accepted as "on the main lobe".
+/// Smallest lag-`u` correlation coefficient `|c(u)|` accepted as "on the main lobe".
 const RHO_MIN: f32 = 0.45;
 /// `y = 2π·fd·Tsym·u` at which `J0(y) = RHO_MIN`: the upper end of the range, rad.
 const SPAN_AT_RHO_MIN: f32 = 1.6095;
@@ -724,6 +724,36 @@ mod tests {
             "{a:?} {b:?}"
         );
         assert!(b.fd_tsym > 0.01, "{b:?}");
+    }
+
+    #[test]
+    fn scattered_pilots_pair_the_same_bins() {
+        // Spacing 4, shift 1: the comb repeats every u = 4 symbols, so lags are 4, 8, 16
+        // (H = 32). A static but frequency-selective channel (a delay of 3 samples:
+        // H_k = e^{−j2πk·3/64}) has zero Doppler only if each product pairs a bin with
+        // itself; mispaired bins would decorrelate and read as a large Doppler.
+        let mut p = NumerologyParams::default();
+        p.pilots.shift_per_symbol = 1;
+        let nu = Numerology::new(p).unwrap();
+        assert_eq!(nu.pattern_period(), 4);
+        let mut e = DopplerEstimator::<64, 16, 32>::new(&nu, DopplerConfig::default()).unwrap();
+        let lags: [u32; 3] = [4, 8, 16];
+        assert!(e.lags().eq(lags.iter().copied()));
+        for m in 0..80u32 {
+            let mut b = [Cf32::new(0.0, 0.0); 64];
+            for (i, x) in PilotIter::new(&nu, m) {
+                let k = if i < 32 { i as f32 } else { i as f32 - 64.0 };
+                let ph = -2.0 * PI * k * 3.0 / 64.0;
+                if let Some(v) = b.get_mut(i) {
+                    *v = Cf32::new(libm::cosf(ph), libm::sinf(ph)) * x;
+                }
+            }
+            e.update(&b, m).unwrap();
+        }
+        let est = e.estimate().unwrap();
+        assert_ne!(est.status, DopplerStatus::AboveRange, "{est:?}");
+        assert_eq!(est.lag_symbols % 4, 0);
+        assert!(est.fd_tsym < 1e-3, "{est:?}");
     }
 
     #[test]
