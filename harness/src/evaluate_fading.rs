@@ -271,6 +271,9 @@ pub fn evaluate_fading(
     }))
 }
 
+// Not inlined: `with_fft_len!` calls every size's instance from one function, and inlined
+// they would share one stack frame sized for N = 4096 (a rayon worker has 2 MiB).
+#[inline(never)]
 fn predicted_mse<const N: usize>(
     numerology: &Numerology,
     config: EstimatorConfig,

@@ -106,6 +106,9 @@ fn true_response<const N: usize>(line: &Tdl, out: &mut [Cf32; N]) {
 }
 
 #[allow(clippy::too_many_arguments)]
+// Not inlined: `with_fft_len!` calls every size's instance from one function, and inlined
+// they would share one stack frame sized for N = 4096 (a rayon worker has 2 MiB).
+#[inline(never)]
 fn run<const N: usize>(
     numerology: &Numerology,
     modulation: Modulation,

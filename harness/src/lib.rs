@@ -11,6 +11,7 @@ pub mod evaluate_fading;
 pub mod fading_link;
 pub mod impair;
 pub mod link;
+pub mod link_survey;
 pub mod noise;
 pub mod plots;
 pub mod rng;

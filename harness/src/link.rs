@@ -131,6 +131,9 @@ pub fn flat_rayleigh_errors(
 /// the flat gain `gain(rng)` → AWGN → receiver front → division by the gain (ideal channel
 /// knowledge) → max-log LLRs weighted by `|h|²/N0` → sign decisions. Returns the count and the
 /// standard deviation of the per-symbol BER.
+// Not inlined: `with_fft_len!` calls every size's instance from one function, and inlined
+// they would share one stack frame sized for N = 4096 (a rayon worker has 2 MiB).
+#[inline(never)]
 fn count_errors<const N: usize>(
     numerology: &Numerology,
     modulation: Modulation,

@@ -10,6 +10,11 @@ use flatbin_harness::evaluate::{evaluate_awgn, numerology_of, render_text};
 use flatbin_harness::evaluate_fading::{evaluate_fading, write_ber_plots};
 use flatbin_harness::scenario::{Scenario, DEFAULT_SCENARIO_ORIGIN, DEFAULT_SCENARIO_TOML};
 
+/// Es/N0 per data subcarrier of the link report the main command prints, dB.
+const SURVEY_ES_N0_DB: f64 = 20.0;
+/// Frames of the link report.
+const SURVEY_FRAMES: usize = 100;
+
 /// OFDM link checks for low-power radios: runs a scenario through the flatbin core.
 #[derive(Parser, Debug)]
 #[command(name = "flatbin", version, about)]
@@ -80,14 +85,21 @@ fn run(cli: Cli) -> Result<ExitCode> {
             let numerology = numerology_of(&scenario, &origin, &text)?;
             let report = evaluate_awgn(&scenario, &numerology)?;
             let fading = evaluate_fading(&scenario, &numerology)?;
+            let survey = flatbin_harness::link_survey::survey(
+                &scenario,
+                &numerology,
+                SURVEY_ES_N0_DB,
+                SURVEY_FRAMES,
+            )?;
             if args.json {
-                let both = serde_json::json!({ "awgn": &report, "fading": &fading });
+                let both = serde_json::json!({ "awgn": &report, "fading": &fading, "link_report": &survey });
                 println!("{}", serde_json::to_string_pretty(&both)?);
             } else {
                 print!("{}", render_text(&report));
                 if let Some(f) = &fading {
                     print!("{}", flatbin_harness::evaluate_fading::render_text(f));
                 }
+                print!("{}", flatbin_harness::link_survey::render_text(&survey));
             }
             if let Some(dir) = args.plots {
                 let files = write_ber_plots(&scenario, &report, fading.as_ref(), &dir)?;

@@ -425,6 +425,9 @@ fn qpsk(rng: &mut HarnessRng) -> Cf32 {
 
 /// ICI power fraction over `symbols` symbols: QPSK on all N bins, no noise, a fresh one-tap
 /// Rayleigh line per symbol, the window-average channel H0 as the one-tap reference.
+// Not inlined: `with_fft_len!` calls every size's instance from one function, and inlined
+// they would share one stack frame sized for N = 4096 (a rayon worker has 2 MiB).
+#[inline(never)]
 fn measure_ici<const N: usize>(
     fd_t: f64,
     fs: f64,
