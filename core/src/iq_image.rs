@@ -97,7 +97,7 @@ pub struct IqImageEstimator<const N: usize> {
     pairs: u32,
 }
 
-const NO_MIRROR: u16 = u16::MAX;
+pub(crate) const NO_MIRROR: u16 = u16::MAX;
 
 impl<const N: usize> IqImageEstimator<N> {
     /// An estimator for `numerology`. Errors: FFT size not `N`; no bin pair `k`, `−k` in the
@@ -241,7 +241,7 @@ fn irr_db_of(rho: f32) -> f32 {
 }
 
 /// Used index of logical bin `k`, if it is a used bin.
-fn used_index_of(nu: &Numerology, k: i32) -> Option<usize> {
+pub(crate) fn used_index_of(nu: &Numerology, k: i32) -> Option<usize> {
     let p = nu.params();
     let from_low = k + (p.fft_len / 2) as i32 - p.guard_low_bins as i32;
     if from_low < 0 || (p.dc_null && k == 0) {
