@@ -65,6 +65,39 @@ pub fn reciprocal(x: u32) -> Option<(i64, i32)> {
     Some((r, s - 32))
 }
 
+/// Base-2 logarithm of `x > 0` in Q16 (`log2(x)·2^16`, up to 63·2^16): the integer part from
+/// the leading zeros, 16 fraction bits by repeated squaring of the Q31 mantissa (each square
+/// ≥ 2 yields a 1 bit and is halved; the classic bit-by-bit method, common practice). Error
+/// below 2 LSB (3·10⁻⁵ in log2). `None` for `x = 0`.
+pub fn log2_q16(x: u64) -> Option<i32> {
+    if x == 0 {
+        return None;
+    }
+    let lz = x.leading_zeros();
+    let int = 63 - lz as i32;
+    // Mantissa in Q31, [2^31, 2^32): x·2^lz is in [2^63, 2^64).
+    let mut m = (x << lz) >> 32;
+    let mut frac = 0i32;
+    for bit in (0..16).rev() {
+        let sq = m * m; // Q62, in [2^62, 2^64)
+        if sq >= 1u64 << 63 {
+            frac |= 1 << bit;
+            m = sq >> 32;
+        } else {
+            m = sq >> 31;
+        }
+    }
+    Some((int << 16) | frac)
+}
+
+/// `10·log10(num/den)` in dB Q8 (dB·256), saturated to the `i16` range; `None` when either
+/// is 0. Integer only ([`log2_q16`]; `10·log10 2 = 3.0103`).
+pub fn ratio_db_q8(num: u64, den: u64) -> Option<i16> {
+    let d = i64::from(log2_q16(num)?) - i64::from(log2_q16(den)?);
+    // dB·256 = log2·2^16 · 3.0103·256/2^16 = log2_q16 · 0.011759 ≈ (· 49321) >> 22.
+    Some(sat16_64(shift_round(d * 49_321, 22)))
+}
+
 /// Inverse square root of `x > 0`: returns `(r, s)` with `1/sqrt(x) = r · 2^(s − 30)`.
 /// Normalises `x` to `μ ∈ [1/4, 1)` by an even shift, seeds `r` linearly and takes four
 /// Newton steps `r ← r(3 − μr²)/2` (common practice). `None` for `x = 0`.
@@ -127,6 +160,23 @@ impl Scaled {
 #[cfg(test)]
 mod tests {
     use super::*;
+
+    #[test]
+    fn log2_and_db_match_libm() {
+        // Against libm's f64 log2 (a general-purpose reference): within 2 LSB of Q16, and
+        // the dB form within 1 LSB of Q8 plus the log2 error.
+        for x in [1u64, 2, 3, 5, 1000, 65_535, 1 << 40, u64::MAX, 123_456_789] {
+            let want = libm::log2(x as f64) * 65536.0;
+            let got = f64::from(log2_q16(x).unwrap());
+            assert!((got - want).abs() <= 2.0, "log2 {x}: {got} vs {want}");
+        }
+        assert_eq!(log2_q16(0), None);
+        for (a, b) in [(1000u64, 1u64), (1, 1000), (3, 7), (1 << 40, 5)] {
+            let want = 10.0 * libm::log10(a as f64 / b as f64) * 256.0;
+            let got = f64::from(ratio_db_q8(a, b).unwrap());
+            assert!((got - want).abs() <= 1.0, "{a}/{b}: {got} vs {want}");
+        }
+    }
 
     #[test]
     fn reciprocal_and_inverse_root_are_accurate() {
