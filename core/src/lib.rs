@@ -98,6 +98,7 @@ pub mod frame_q15;
 pub mod front;
 pub mod gain_dc;
 pub mod ici;
+pub mod ici_q15;
 pub mod iq_image;
 pub mod iq_image_q15;
 pub mod linalg;
