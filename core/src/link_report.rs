@@ -224,6 +224,83 @@ impl LinkReport {
     }
 }
 
+/// The link report in integers, for the integer (Cortex-M0) path: the same figures as
+/// [`LinkReport`] in fixed point (dB as Q8, i.e. dB·256; ratios of a subcarrier spacing and
+/// `fd·T` as Q16; delay as Q16 samples; SCO as ppm Q8). The integer trackers fill it; the
+/// host reads it with [`LinkReportQ15::to_report`].
+#[derive(Clone, Copy, Debug, Default, PartialEq, Eq)]
+#[cfg_attr(feature = "defmt", derive(defmt::Format))]
+pub struct LinkReportQ15 {
+    /// Symbols the report covers.
+    pub symbols: u32,
+    /// SNR, dB Q8.
+    pub snr_db_q8: i16,
+    /// Mean per-bin SINR, dB Q8.
+    pub sinr_db_q8: i16,
+    /// Decision-directed EVM, dB Q8.
+    pub evm_db_q8: i16,
+    /// MER, dB Q8.
+    pub mer_db_q8: i16,
+    /// Total CFO, subcarrier spacings Q16.
+    pub cfo_q16: i32,
+    /// Residual CFO, subcarrier spacings Q16.
+    pub residual_cfo_q16: i32,
+    /// SCO, ppm Q8.
+    pub sco_ppm_q8: i32,
+    /// `fd·T`, Q16.
+    pub doppler_fd_t_q16: u32,
+    /// Predicted signal-to-ICI ratio, dB Q8.
+    pub ici_predicted_sir_db_q8: i16,
+    /// Measured signal to noise-plus-ICI on the pilots, dB Q8.
+    pub noise_ici_measured_db_q8: i16,
+    /// RMS delay spread, samples Q16.
+    pub delay_spread_q16: u32,
+    /// Image rejection ratio, dB Q8.
+    pub image_rejection_db_q8: i16,
+    /// Bins flagged as interfered.
+    pub interferer_count: u16,
+    /// The first [`MAX_LISTED_BINS`] interfered FFT bins (`u16::MAX` unused).
+    pub interferer_bins: [u16; MAX_LISTED_BINS],
+    /// Components clipped.
+    pub clipped: u32,
+    /// Quality flags ([`flags`], the same bits as [`LinkReport`]).
+    pub flags: u16,
+}
+
+impl LinkReportQ15 {
+    /// The same report in floating point (host side; `tsym_s` the symbol period with CP, s,
+    /// for the Doppler in Hz).
+    pub fn to_report(&self, tsym_s: f32, fft_len: usize, cp_len: usize) -> LinkReport {
+        let db = |v: i16| f32::from(v) / 256.0;
+        let fd_t = self.doppler_fd_t_q16 as f32 / 65536.0;
+        let fd_tsym = if fft_len > 0 {
+            fd_t * (fft_len + cp_len) as f32 / fft_len as f32
+        } else {
+            0.0
+        };
+        LinkReport {
+            symbols: self.symbols,
+            snr_db: db(self.snr_db_q8),
+            sinr_db: db(self.sinr_db_q8),
+            evm_db: db(self.evm_db_q8),
+            mer_db: db(self.mer_db_q8),
+            cfo: self.cfo_q16 as f32 / 65536.0,
+            residual_cfo: self.residual_cfo_q16 as f32 / 65536.0,
+            sco_ppm: self.sco_ppm_q8 as f32 / 256.0,
+            doppler_fd_t: fd_t,
+            doppler_hz: if tsym_s > 0.0 { fd_tsym / tsym_s } else { 0.0 },
+            ici_predicted_sir_db: db(self.ici_predicted_sir_db_q8),
+            noise_ici_measured_db: db(self.noise_ici_measured_db_q8),
+            delay_spread_samples: self.delay_spread_q16 as f32 / 65536.0,
+            image_rejection_db: db(self.image_rejection_db_q8),
+            interferer_count: self.interferer_count,
+            interferer_bins: self.interferer_bins,
+            clipped: self.clipped,
+            flags: self.flags,
+        }
+    }
+}
+
 #[cfg(test)]
 mod tests {
     use super::*;
@@ -249,7 +326,17 @@ mod tests {
         assert_eq!(r.interferer_count, 5);
         assert_eq!(r.interferer_bins, [3, 9, 12, 20]);
         assert!(r.has(flags::INTERFERENCE | flags::CLIPPING | flags::SNR));
-        // The struct stays small enough to send every symbol.
+        // The structs stay small enough to send every symbol.
         assert!(core::mem::size_of::<LinkReport>() <= 80);
+        assert!(core::mem::size_of::<LinkReportQ15>() <= 64);
+        let q = LinkReportQ15 {
+            snr_db_q8: 20 * 256 + 128,
+            doppler_fd_t_q16: 6554,
+            ..LinkReportQ15::default()
+        };
+        let r = q.to_report(288e-6, 64, 8);
+        assert_eq!(r.snr_db, 20.5);
+        // fd·T 0.1 with T = 256 µs: fd = 390.6 Hz.
+        assert!((r.doppler_hz - 390.6).abs() < 0.1);
     }
 }
