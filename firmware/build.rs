@@ -1,9 +1,12 @@
 //! Picks the memory layout for the target board and tells the firmware which core it runs on,
-//! and writes the Q15 receiver designs as `static` tables (`$OUT_DIR/rx_designs.rs`).
+//! and writes the Q15 receiver designs as `static` tables (`$OUT_DIR/rx_designs.rs`) and the
+//! frame preamble of the synchronisation captures (`$OUT_DIR/sync_preambles.rs`).
 //!
 //! The designs are computed here, on the host, by `DesignQ15::new` (floating point, f64
 //! Cholesky) for the settings in `vectors_gen::rx`, so the firmware gets integers only and a
-//! Cortex-M0 build runs the receiver without any floating point.
+//! Cortex-M0 build runs the receiver without any floating point. The preamble waveforms are
+//! computed here by `vectors_gen::sync::write_preamble_f32` (the host's f32 FFT), so the
+//! target never generates them; the host checker calls the same function.
 
 use std::fmt::Write as _;
 use std::{env, fs, path::PathBuf};
@@ -40,6 +43,14 @@ fn main() {
     designs::<256>(&mut src);
     fs::write(out.join("rx_designs.rs"), src).expect("write rx_designs.rs");
 
+    let mut src = String::from(
+        "// Written by firmware/build.rs: the frame preamble (symbols A and B with their CPs, unit\n\
+         // scale) computed on the host by vectors_gen::sync::write_preamble_f32, as f32 bits.\n",
+    );
+    preamble::<64>(&mut src);
+    preamble::<256>(&mut src);
+    fs::write(out.join("sync_preambles.rs"), src).expect("write sync_preambles.rs");
+
     println!("cargo::rerun-if-changed=memory");
     println!("cargo::rerun-if-changed=build.rs");
 }
@@ -73,6 +84,26 @@ fn designs<const N: usize>(src: &mut String) {
         let _ = writeln!(src, "            {i} => Some(&{name}),");
     }
     let _ = writeln!(src, "            _ => None,\n        }}\n    }}\n}}");
+}
+
+/// Appends `PREAMBLE_<N>`, the preamble at size `N`.
+fn preamble<const N: usize>(src: &mut String) {
+    let mut pre = vec![flatbin::Cf32::new(0.0, 0.0); vectors_gen::sync::preamble_len(N)];
+    assert!(
+        vectors_gen::sync::write_preamble_f32::<N>(&mut pre),
+        "preamble at N = {N}"
+    );
+    let _ = writeln!(
+        src,
+        "/// The preamble at N = {N} ({} samples).\npub static PREAMBLE_{N}: [Cf32; {}] = {};",
+        pre.len(),
+        pre.len(),
+        list(&pre, |v| format!(
+            "Cf32::new(f32::from_bits({:#010x}), f32::from_bits({:#010x}))",
+            v.re.to_bits(),
+            v.im.to_bits()
+        ))
+    );
 }
 
 fn list<T>(items: impl IntoIterator<Item = T>, f: impl Fn(T) -> String) -> String {

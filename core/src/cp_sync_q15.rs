@@ -86,7 +86,8 @@ impl<const N: usize, const S: usize> CpTrackerQ15<N, S> {
                 // old · conj(x); energies ½(|old|² + |x|²) kept doubled (exact).
                 let prod = (or * xr + oi * xi, oi * xr - or * xi);
                 let energy = or * or + oi * oi + xr * xr + xi * xi;
-                let slot = ((n - n_len) % l) as usize;
+                // l ≥ 1 (`new` rejects a zero CP); `checked_rem` keeps the panic path out.
+                let slot = (n - n_len).checked_rem(l).unwrap_or(0) as usize;
                 if let (Some(p), Some(e)) = (self.prods.get_mut(slot), self.energies.get_mut(slot))
                 {
                     self.run.0 += prod.0 - p.0;
@@ -149,7 +150,8 @@ fn isqrt(v: u64) -> u64 {
     }
     let mut x = 1u64 << ((64 - v.leading_zeros()).div_ceil(2));
     loop {
-        let y = (x + v / x) / 2;
+        // x ≥ 1 throughout; `checked_div` keeps the panic path out.
+        let y = (x + v.checked_div(x).unwrap_or(0)) / 2;
         if y >= x {
             return x;
         }

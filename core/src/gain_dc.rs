@@ -254,7 +254,8 @@ pub fn estimate_dc_cfo_q15(samples: &[Cq15], increment: u32) -> Option<Cq15> {
     let div = |n: i128| -> i16 {
         let a = n.unsigned_abs();
         let m = mag.unsigned_abs();
-        let (q, r) = (a / m, a % m);
+        // m ≥ 2^20 here; `checked_*` keeps a division-by-zero panic path out of the binary.
+        let (q, r) = (a.checked_div(m).unwrap_or(0), a.checked_rem(m).unwrap_or(0));
         let q = (q + u128::from(r * 2 >= m)).min(32768) as i32;
         sat16(if n < 0 { -q } else { q })
     };

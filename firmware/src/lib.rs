@@ -188,6 +188,23 @@ pub mod rx_tables {
     include!(concat!(env!("OUT_DIR"), "/rx_designs.rs"));
 }
 
+/// The frame preamble of the synchronisation captures at N = 64 and 256, written by
+/// `build.rs` (computed on the host by `vectors_gen::sync::write_preamble_f32`).
+pub mod sync_tables {
+    use flatbin::Cf32;
+
+    include!(concat!(env!("OUT_DIR"), "/sync_preambles.rs"));
+
+    /// The preamble at FFT size `n` (`vectors_gen::sync::preamble_len(n)` samples), or None.
+    pub fn preamble(n: usize) -> Option<&'static [Cf32]> {
+        match n {
+            64 => Some(&PREAMBLE_64),
+            256 => Some(&PREAMBLE_256),
+            _ => None,
+        }
+    }
+}
+
 /// Prints `words` as `w xxxxxxxx ...` lines (16 words each, one semihosting write per line),
 /// then `end`.
 pub fn print_words(words: impl Iterator<Item = u32>) {

@@ -66,6 +66,20 @@ const HEADER: &str = "\
 #   by an empty split). Stack: of the whole call; not the receiver object (about 100*N bytes
 #   with its design). code_bytes: a firmware with the receiver minus one that builds only its
 #   Numerology; includes the FFT (not for `est_eq_demap`) and the design table (rodata).
+# Synchronisation rows (firmware/src/bin/sync_cost.rs), the unit in the stage name:
+#   `*_1k_samples`: one call on 1000 input samples (instructions per sample = the figure /
+#   1000), in steady state after 1000 samples of the same input (-12 dBFS Gaussian noise):
+#   acq_q15 = AcquirerQ15::push while listening (no detection), nco_q15 = NcoQ15::derotate
+#   (n = 0: no FFT size), cp_q15 = CpTrackerQ15::push. `cp_q15_estimate`: one
+#   CpTrackerQ15::estimate (search over N + L positions). `sco_q15_update`: one
+#   ScoEstimatorQ15::update (one symbol's FFT output, after the reference and one symbol);
+#   `sco_q15_estimate`: one estimate_q32. `frame_q15_data_symbol_qpsk`: one
+#   FrameReceiverQ15::push of the N + L samples that complete a data symbol (the 5th of a
+#   frame of vectors_gen::sync capture 0; K = M = 4, QPSK, track_sco and the DC blocker on):
+#   the steady-state cost per data symbol, the Q15 receiver call included. Stack: of the call,
+#   not the stage object. code_bytes: a firmware with the stage (its Numerology built too)
+#   minus `size_numerology` (`size_baseline` for nco_q15); the frame receiver's includes the
+#   Q15 receiver, its FFT and its design table.
 # Build: opt-level 3, fat LTO, codegen-units 1, panic=abort, Rust toolchain 1.95.0 (pinned);
 #   QEMU 7.2: cortex-m4f = mps2-an386 (-cpu cortex-m4), cortex-m0 = microbit (-cpu cortex-m0).
 core,stage,n,instructions,stack_bytes,code_bytes";

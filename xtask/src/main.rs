@@ -8,12 +8,13 @@
 //!    `size_*` probes with `nm`, and compares everything with `mcu/costs.csv`;
 //! 3. runs the `vectors` firmware and compares every output word bit for bit with the same
 //!    code run on the host, and prints the Q15 FFT's SQNR against an f64 reference; runs
-//!    `rx_vectors` (the Q15 receiver on deterministic frames) and compares its outputs bit
-//!    for bit with the host's receiver on the same frames;
+//!    `rx_vectors` (the Q15 receiver on deterministic frames) and `sync_vectors` (the integer
+//!    synchronisation stages and the streaming frame receiver on deterministic captures) and
+//!    compares their outputs bit for bit with the same code run on the host;
 //! 4. links `panic_free` (and `q15_only`), whose panic handler calls an undefined function:
 //!    a surviving panic path fails the link; checks that the M0 Q15 FFT build links no soft
 //!    float and that no soft float is reachable from the Q15 receiver's per-symbol code
-//!    (`rx_q15_only`).
+//!    (`rx_q15_only`) nor from the integer synchronisation stages (`sync_q15_only`).
 //!
 //! See `firmware/README.md`.
 
@@ -24,6 +25,8 @@ mod panics;
 mod reach;
 #[cfg(feature = "q15")]
 mod rx_vectors;
+#[cfg(feature = "q15")]
+mod sync_vectors;
 mod tools;
 mod vectors;
 
@@ -48,6 +51,13 @@ pub struct Core {
     pub vector_sizes: &'static [usize],
     /// FFT sizes of the Q15 receiver's costs and vectors (its state must fit the RAM).
     pub rx_sizes: &'static [usize],
+    /// FFT sizes of the synchronisation vectors and costs (acquisition, preamble steps, NCO,
+    /// gain/DC, SCO estimator).
+    pub sync_sizes: &'static [usize],
+    /// Of those, the sizes the CP tracker runs at (`CpTrackerQ15<N, N + N/8>` must fit).
+    pub sync_cp_sizes: &'static [usize],
+    /// Of those, the sizes the frame receiver runs at (`FrameReceiverQ15` must fit).
+    pub sync_frame_sizes: &'static [usize],
 }
 
 /// The cores, in table order. Sizes follow the boards' RAM (16 KiB on the microbit).
@@ -58,6 +68,9 @@ pub const CORES: [Core; 2] = [
         cost_sizes: &[64, 128, 256, 512, 1024],
         vector_sizes: &[16, 64, 256, 1024],
         rx_sizes: &[64, 256],
+        sync_sizes: &[64, 256],
+        sync_cp_sizes: &[64, 256],
+        sync_frame_sizes: &[64, 256],
     },
     Core {
         name: "cortex-m0",
@@ -66,6 +79,12 @@ pub const CORES: [Core; 2] = [
         vector_sizes: &[16, 64, 256],
         // ReceiverQ15<_, 256, 4, 4> alone is about 25 KiB: only N = 64 fits 16 KiB.
         rx_sizes: &[64],
+        sync_sizes: &[64, 256],
+        // CpTrackerQ15<256, 288> is about 14.9 KB: only N = 64 fits beside the firmware.
+        sync_cp_sizes: &[64],
+        // FrameReceiverQ15<64, 4, 4, 512> alone is about 14 KB, and its push needs several KB
+        // of stack: it does not fit 16 KiB at any size (see firmware/src/bin/sync_vectors.rs).
+        sync_frame_sizes: &[],
     },
 ];
 
@@ -96,13 +115,46 @@ pub fn rx_stages() -> Vec<&'static str> {
     }
 }
 
+/// Integer synchronisation stages (`firmware/src/bin/sync_cost.rs`), in table order, with
+/// the sizes `core` measures them at (`nco_q15_1k_samples` has no FFT size: n = 0). The unit
+/// is in the name: `1k_samples` rows are one call on 1000 input samples, the others one call
+/// (`frame_q15_data_symbol_qpsk`: the push of the samples that complete one data symbol).
+pub fn sync_stages(core: &Core) -> Vec<(&'static str, &'static [usize])> {
+    if !Q15 {
+        return Vec::new();
+    }
+    vec![
+        ("acq_q15_1k_samples", core.sync_sizes),
+        ("nco_q15_1k_samples", &[0]),
+        ("cp_q15_1k_samples", core.sync_cp_sizes),
+        ("cp_q15_estimate", core.sync_cp_sizes),
+        ("sco_q15_update", core.sync_sizes),
+        ("sco_q15_estimate", core.sync_sizes),
+        ("frame_q15_data_symbol_qpsk", core.sync_frame_sizes),
+    ]
+}
+
 /// Every measured (stage, sizes) of `core`, in table order.
 fn expected_stages(core: &Core) -> Vec<(&'static str, &'static [usize])> {
     stages()
         .into_iter()
         .map(|s| (s, core.cost_sizes))
         .chain(rx_stages().into_iter().map(|s| (s, core.rx_sizes)))
+        .chain(sync_stages(core))
         .collect()
+}
+
+/// The size probe of a synchronisation stage at `n` and the probe it is measured against
+/// (`firmware/src/size_sync_probe.rs`).
+fn sync_size_probes(stage: &str, n: usize) -> Option<(String, &'static str)> {
+    let family = ["acq", "nco", "cp", "sco", "frame"]
+        .into_iter()
+        .find(|f| stage.starts_with(&format!("{f}_q15_")))?;
+    Some(if family == "nco" {
+        ("size_sync_nco".into(), "size_baseline")
+    } else {
+        (format!("size_sync_{family}_{n}"), "size_numerology")
+    })
 }
 
 /// Repository root (the parent of this crate).
@@ -180,9 +232,21 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
             bins.push("rx_q15_only".into());
             bins.push("rx_cost".into());
             bins.push("rx_vectors".into());
+            bins.push("sync_vectors".into());
             bins.push("size_numerology".into());
             for n in core.rx_sizes {
                 bins.push(format!("size_rx_q15_{n}"));
+            }
+            bins.push("sync_cost".into());
+            bins.push("sync_q15_only".into());
+            for (stage, sizes) in sync_stages(core) {
+                for &n in sizes {
+                    if let Some((probe, _)) = sync_size_probes(stage, n) {
+                        if !bins.contains(&probe) {
+                            bins.push(probe);
+                        }
+                    }
+                }
             }
         }
         tools::build_firmware(&firmware, core.triple, &bins, &[])?;
@@ -193,12 +257,14 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
         if Q15 && core.triple.starts_with("thumbv6m") {
             check_no_soft_float(&elf("q15_only"), failures)?;
             reach::check_rx_no_soft_float(&elf("rx_q15_only"), failures)?;
+            reach::check_sync_no_soft_float(&elf("sync_q15_only"), failures)?;
         }
 
         section(&format!("{}: instruction counts", core.name));
         let mut runs = run_cost(core, &elf("cost"), failures)?;
         if Q15 {
             runs.extend(run_cost(core, &elf("rx_cost"), failures)?);
+            runs.extend(run_cost(core, &elf("sync_cost"), failures)?);
         }
         check_all_measured(core, &runs, failures);
         // Table order: the stages as listed, then N.
@@ -214,7 +280,9 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
         });
         let baseline = code_bytes(&elf("size_baseline"))?;
         for (stage, n, instructions, stack_bytes) in runs {
-            let code = if stage.starts_with("rx_q15_") {
+            let code = if let Some((probe, base)) = sync_size_probes(&stage, n) {
+                code_bytes(&elf(&probe))?.saturating_sub(code_bytes(&elf(base))?)
+            } else if stage.starts_with("rx_q15_") {
                 // The receiver probe against one that builds only its Numerology; without
                 // the FFT's own code for the `est_eq_demap` stages.
                 let rx = code_bytes(&elf(&format!("size_rx_q15_{n}")))?
@@ -249,6 +317,11 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
                 core.name
             ));
             rx_vectors::check(core, &elf("rx_vectors"), failures)?;
+            section(&format!(
+                "{}: synchronisation stages, bit-exact against the host",
+                core.name
+            ));
+            sync_vectors::check(core, &elf("sync_vectors"), failures)?;
         }
     }
 

@@ -1,14 +1,17 @@
-//! No floating point on the Q15 receiver's per-symbol path of the Cortex-M0 build.
+//! No floating point on the integer paths of the Cortex-M0 build: the Q15 receiver's
+//! per-symbol code and the integer synchronisation stages.
 //!
 //! `firmware/src/bin/rx_q15_only.rs` builds the receiver from its `build.rs` design table in
 //! `per_symbol::<N>` and its `Numerology` in `configure` (`Numerology::new` computes the pilot
-//! amplitude with `libm::powf`, configuration time). So the binary does link soft float; the
-//! check is that none of it is reachable from `per_symbol`: the disassembly's direct calls
-//! and branches are followed from every `per_symbol` instance, and the reached functions must
-//! include no soft-float routine (`crate::is_soft_float`) and no `libm` function. An indirect
-//! call or jump in the reached code fails the check (it could go anywhere), except a Thumb-1
-//! jump table (`mov pc, rX` followed by its `.word` entries) whose entries all lie in the same
-//! function.
+//! amplitude with `libm::powf`, configuration time); `firmware/src/bin/sync_q15_only.rs` calls
+//! every integer synchronisation entry point in `per_sample::<N, S, R>` the same way. So the
+//! binaries do link soft float; the check is that none of it is reachable from the entry
+//! functions: the disassembly's direct calls and branches are followed from every instance,
+//! and the reached functions must include no soft-float routine (`crate::is_soft_float`) and no
+//! `libm` function. An indirect call or jump in the reached code fails the check (it could go
+//! anywhere), except a Thumb-1 jump table, whose possible targets are followed instead
+//! (`jump_table_targets`: a `mov pc, rX` followed by its `.word` entries, or an `add pc, rX`
+//! over a byte or half-word offset table).
 
 use std::collections::BTreeSet;
 use std::path::Path;
@@ -78,27 +81,83 @@ fn data_words(text: &str) -> Vec<(u64, u64)> {
         .collect()
 }
 
-/// The jump table after the `mov pc, rX` at `at` in function `f`: true when it has entries
-/// (the run of `.word`s starting within 8 bytes after `at`) and all of them lie in `f`.
-fn is_local_jump_table(words: &[(u64, u64)], f: &Function, at: u64) -> bool {
-    let first = words.partition_point(|&(a, _)| a <= at);
-    let mut next = match words.get(first) {
-        Some(&(a, _)) if a <= at + 8 => a,
-        _ => return false,
-    };
-    let mut count = 0;
-    for &(a, v) in words.get(first..).unwrap_or_default() {
-        if a != next || a >= f.end {
-            break;
-        }
-        let target = v & !1;
-        if !(f.start..f.end).contains(&target) {
-            return false;
-        }
-        count += 1;
-        next = a + 4;
+/// Operands of an instruction's text (`pc, r2` → `["pc", "r2"]`).
+fn operands(i: &Insn) -> Vec<&str> {
+    i.text
+        .split_whitespace()
+        .skip(2)
+        .map(|t| t.trim_end_matches(','))
+        .collect()
+}
+
+/// The functions a Thumb-1 jump table can reach from the indirect jump `insns[k]`, or None
+/// when no table is recognised there (the jump then fails the check). Two forms, both sound
+/// whatever the table's length (the index bound before the jump is not parsed):
+/// - `mov pc, rX` after a load from a table of absolute `.word` entries starting within 8
+///   bytes after the jump: the entries are the run of words that are Thumb code addresses
+///   (bit 0 set) inside a known function, ending at the first word that is not (the table's
+///   literal pool follows it); every entry is followed. Data words that happen to look like
+///   code addresses are followed too (conservative).
+/// - `add pc, rX` after `lsls rX, rX, #1` after `ldrb`/`ldrh rX` (a byte or half-word offset
+///   table): every target lies within `2·255` (or `2·65535`) bytes after the jump's PC, so
+///   every function overlapping that range is taken as reached.
+fn jump_table_targets(
+    insns: &[Insn],
+    k: usize,
+    words: &[(u64, u64)],
+    fs: &[Function],
+) -> Option<Vec<usize>> {
+    let i = insns.get(k)?;
+    let ops = operands(i);
+    let op = i.op.trim_end_matches(".w").trim_end_matches(".n");
+    if ops.first() != Some(&"pc") {
+        return None;
     }
-    count > 0
+    match op {
+        "mov" => {
+            let first = words.partition_point(|&(a, _)| a <= i.addr);
+            let mut next = match words.get(first) {
+                Some(&(a, _)) if a <= i.addr + 8 => a,
+                _ => return None,
+            };
+            let mut targets = Vec::new();
+            for &(a, v) in words.get(first..).unwrap_or_default() {
+                let entry = (v & 1 == 1).then(|| containing(fs, v & !1)).flatten();
+                let (true, Some(j)) = (a == next, entry) else {
+                    break;
+                };
+                targets.push(j);
+                next = a + 4;
+            }
+            (!targets.is_empty()).then_some(targets)
+        }
+        "add" => {
+            let reg = *ops.get(1)?;
+            let shift = insns.get(k.checked_sub(1)?)?;
+            let load = insns.get(k.checked_sub(2)?)?;
+            if shift.op != "lsls" || operands(shift) != [reg, reg, "#1"] {
+                return None;
+            }
+            if operands(load).first() != Some(&reg) {
+                return None;
+            }
+            let span = match load.op.as_str() {
+                "ldrb" => 2 * 255,
+                "ldrh" => 2 * 65_535,
+                _ => return None,
+            };
+            // Thumb: PC reads as the instruction's address + 4.
+            let (lo, hi) = (i.addr + 4, i.addr + 4 + span);
+            Some(
+                fs.iter()
+                    .enumerate()
+                    .filter(|(_, f)| f.start <= hi && f.end > lo)
+                    .map(|(j, _)| j)
+                    .collect(),
+            )
+        }
+        _ => None,
+    }
 }
 
 fn functions(elf: &Path) -> Result<Vec<Function>, String> {
@@ -124,11 +183,38 @@ fn containing(fs: &[Function], addr: u64) -> Option<usize> {
 
 /// Checks `rx_q15_only` (Cortex-M0): no soft float reachable from `per_symbol`.
 pub fn check_rx_no_soft_float(elf: &Path, failures: &mut Failures) -> Result<(), String> {
-    let label = "rx_q15_only (Cortex-M0)";
+    check_no_soft_float_from(
+        elf,
+        "rx_q15_only (Cortex-M0)",
+        "rx_q15_only::per_symbol",
+        "the receiver's per-symbol code",
+        failures,
+    )
+}
+
+/// Checks `sync_q15_only` (Cortex-M0): no soft float reachable from `per_sample`.
+pub fn check_sync_no_soft_float(elf: &Path, failures: &mut Failures) -> Result<(), String> {
+    check_no_soft_float_from(
+        elf,
+        "sync_q15_only (Cortex-M0)",
+        "sync_q15_only::per_sample",
+        "the integer synchronisation code",
+        failures,
+    )
+}
+
+/// No soft float reachable from the functions whose demangled name contains `entry`.
+fn check_no_soft_float_from(
+    elf: &Path,
+    label: &str,
+    entry: &str,
+    what: &str,
+    failures: &mut Failures,
+) -> Result<(), String> {
     let Some(tool) = objdump() else {
         failures.push(format!(
-            "{label}: no llvm-objdump (or arm-none-eabi-objdump) to follow the calls of the \
-             receiver's per-symbol code; `rustup component add llvm-tools` provides one"
+            "{label}: no llvm-objdump (or arm-none-eabi-objdump) to follow the calls of \
+             {what}; `rustup component add llvm-tools` provides one"
         ));
         return Ok(());
     };
@@ -143,11 +229,11 @@ pub fn check_rx_no_soft_float(elf: &Path, failures: &mut Failures) -> Result<(),
     let words = data_words(&dis.stdout);
 
     let entries: Vec<usize> = (0..fs.len())
-        .filter(|&i| fs[i].demangled.contains("rx_q15_only::per_symbol"))
+        .filter(|&i| fs[i].demangled.contains(entry))
         .collect();
     if entries.is_empty() {
         failures.push(format!(
-            "{label}: no `per_symbol` function in the binary (inlined?): nothing to check"
+            "{label}: no `{entry}` function in the binary (inlined?): nothing to check"
         ));
         return Ok(());
     }
@@ -157,12 +243,22 @@ pub fn check_rx_no_soft_float(elf: &Path, failures: &mut Failures) -> Result<(),
     let mut callers_of_float: BTreeSet<usize> = BTreeSet::new();
     // Every function's outgoing edges, once.
     let mut edges: Vec<Vec<usize>> = vec![Vec::new(); fs.len()];
-    for i in &insns {
+    for (k, i) in insns.iter().enumerate() {
         let Some(from) = containing(&fs, i.addr) else {
             continue;
         };
-        if is_indirect(i) && !is_local_jump_table(&words, &fs[from], i.addr) {
-            indirect.push((from, i.text.trim().to_string()));
+        if is_indirect(i) {
+            match jump_table_targets(&insns, k, &words, &fs) {
+                Some(targets) => {
+                    for to in targets.into_iter().filter(|&to| to != from) {
+                        edges[from].push(to);
+                        if fs[to].is_float() && !fs[from].is_float() {
+                            callers_of_float.insert(from);
+                        }
+                    }
+                }
+                None => indirect.push((from, i.text.trim().to_string())),
+            }
         }
         if !is_branch(&i.op) {
             continue;
@@ -205,13 +301,13 @@ pub fn check_rx_no_soft_float(elf: &Path, failures: &mut Failures) -> Result<(),
     }
     if !float.is_empty() {
         failures.push(format!(
-            "{label}: the receiver's per-symbol code reaches soft float: {}",
+            "{label}: {what} reaches soft float: {}",
             float.join(", ")
         ));
     }
     if !jumps.is_empty() {
         failures.push(format!(
-            "{label}: indirect branches in the receiver's per-symbol code (not followed): {}",
+            "{label}: indirect branches in {what} (not followed): {}",
             jumps.join("; ")
         ));
     }
@@ -246,20 +342,37 @@ mod tests {
 
     #[test]
     fn jump_tables() {
+        // A word table (entries in two functions) followed by its literal pool, as llvm-objdump
+        // prints it for the M0 (`mov pc, r2`, padding, `.word`s).
         let text = "    6a7c:      \tmov\tpc, r2\n    6a7e:      \tmov\tr8, r8\n\n00006a80 <$d>:\n    \
-                    6a80:\t95 6a 00 00\t.word\t0x00006a95\n    6a84:\td5 6a 00 00\t.word\t0x00006ad5\n";
+                    6a80:\t95 6a 00 00\t.word\t0x00006a95\n    6a84:\td5 6a 00 00\t.word\t0x00006ad5\n    \
+                    6a88:\tff ff ff 3f\t.word\t0x3fffffff\n    6a8c:\t95 6a 00 00\t.word\t0x00006a95\n";
         let words = data_words(text);
-        assert_eq!(words, vec![(0x6a80, 0x6a95), (0x6a84, 0x6ad5)]);
+        assert_eq!(words.len(), 4);
         let f = |start, end| Function {
             start,
             end,
             name: String::new(),
             demangled: String::new(),
         };
-        assert!(is_local_jump_table(&words, &f(0x6000, 0x7000), 0x6a7c));
-        // An entry outside the function, or no table at all.
-        assert!(!is_local_jump_table(&words, &f(0x6000, 0x6ab0), 0x6a7c));
-        assert!(!is_local_jump_table(&words, &f(0x6000, 0x7000), 0x6000));
+        let fs = [f(0x6000, 0x6ab0), f(0x6ab0, 0x7000)];
+        let insns = parse_disassembly(text);
+        // Both entries are followed; the pool word 0x3fffffff ends the table, so the word
+        // after it (which looks like an entry) is not read.
+        assert_eq!(jump_table_targets(&insns, 0, &words, &fs), Some(vec![0, 1]));
+        // No table right after a jump elsewhere.
+        let far = parse_disassembly("    6000:      \tmov\tpc, r2\n");
+        assert_eq!(jump_table_targets(&far, 0, &words, &fs), None);
+        // A byte offset table: every function within 510 bytes after PC + 4 (0x6a04).
+        let bytes = parse_disassembly(
+            "    69fc:      \tldrb\tr3, [r3, #4]\n    69fe:      \tlsls\tr3, r3, #1\n    \
+             6a00:      \tadd\tpc, r3\n",
+        );
+        assert_eq!(jump_table_targets(&bytes, 2, &words, &fs), Some(vec![0, 1]));
+        // Not that pattern (no `lsls` by one before it): not recognised.
+        assert_eq!(jump_table_targets(&bytes, 1, &words, &fs), None);
+        let plain = parse_disassembly("    6aac:      \tadd\tpc, r3\n");
+        assert_eq!(jump_table_targets(&plain, 0, &words, &fs), None);
     }
 
     #[test]

@@ -1,5 +1,7 @@
 //! Panic-free link check: calls every public per-symbol entry point of the core for every
-//! supported size, with inputs the optimiser cannot see through (`black_box`). The panic
+//! supported size, with inputs the optimiser cannot see through (`black_box`): the FFTs, the
+//! transmitters, the front, the demapper, the Q15 receiver, and the synchronisation stages
+//! (`acquire_q15`, `nco`, `gain_dc`, `cp_sync_q15`, `sco_q15`, `sync_q15`, `frame_q15`). The panic
 //! handler calls a function that is declared but defined nowhere, so if any panic path
 //! survives optimisation the link fails naming `flatbin_panic_path_reachable`.
 //!
@@ -102,9 +104,10 @@ fn params(n: usize) -> NumerologyParams {
     })
 }
 
-/// Every entry point at size N. Results go to `black_box` so nothing is dropped as dead.
+/// Every entry point at size N (`S = N + N/8`, the symbol length of `params(N)`; `R = 8N`,
+/// the frame receiver's ring). Results go to `black_box` so nothing is dropped as dead.
 #[inline(never)]
-fn at_size<const N: usize>(b: &mut Buffers) {
+fn at_size<const N: usize, const S: usize, const R: usize>(b: &mut Buffers) {
     let Ok(nu) = Numerology::new(params(N)) else {
         black_box(N);
         return;
@@ -148,6 +151,11 @@ fn at_size<const N: usize>(b: &mut Buffers) {
     }
     #[cfg(feature = "q15")]
     receiver_q15::<N>(&nu, b);
+    // The M0's 256 KiB of flash holds the synchronisation stages at the sizes it runs them at.
+    #[cfg(feature = "q15")]
+    if !cfg!(core_m0) || N == 64 || N == 256 {
+        sync_q15::<N, S, R>(&nu, b);
+    }
 }
 
 /// A design the optimiser cannot see into (any values: the receiver must not panic for any).
@@ -204,6 +212,107 @@ fn receiver_q15<const N: usize>(nu: &Numerology, b: &mut Buffers) {
     rx.reset();
 }
 
+/// The synchronisation stages' entry points at size N: the integer ones (`AcquirerQ15`,
+/// `NcoQ15`, the Q15 gain/DC functions, `CpTrackerQ15`, `ScoEstimatorQ15`, `sync_q15`,
+/// `FrameReceiverQ15`) and the configuration-time floating-point helpers of the same modules.
+/// Never run: the stages live on the stack here.
+#[cfg(feature = "q15")]
+#[inline(never)]
+fn sync_q15<const N: usize, const S: usize, const R: usize>(nu: &Numerology, b: &mut Buffers) {
+    use flatbin::acquire_q15::AcquirerQ15;
+    use flatbin::cp_sync_q15::CpTrackerQ15;
+    use flatbin::frame_q15::{FrameConfigQ15, FrameReceiverQ15};
+    use flatbin::gain_dc::{
+        estimate_dc_cfo_q15, estimate_dc_q15, gain_for_backoff_q15, remove_dc_q15,
+        target_amplitude_q30, DcSumsQ15, PowerQ15,
+    };
+    use flatbin::nco::{cos_sin_q15, increment_for_cfo, increment_for_cfo_q16, NcoQ15};
+    use flatbin::sco_q15::ScoEstimatorQ15;
+    use flatbin::sync_q15::{first_path_offset_q15, increment_for_cfo_q31, total_cfo_q15};
+
+    let len = black_box(nu.symbol_len());
+    if let Ok(mut acq) = AcquirerQ15::<N>::new(nu, black_box(9411)) {
+        let acq = black_box(&mut acq);
+        sink(acq.push(black_box(b.q15.get(..len).unwrap_or_default())));
+        sink(acq.position());
+    }
+    let mut nco = NcoQ15::new();
+    let nco = black_box(&mut nco);
+    nco.set_increment(increment_for_cfo_q16(black_box(144_179), N));
+    nco.set_phase(black_box(7));
+    nco.advance(black_box(100));
+    sink(nco.derotate(black_box(&mut b.q15[..])));
+    sink((nco.phase(), nco.increment()));
+    nco.reset();
+    nco.set_cfo(black_box(0.3), N);
+    sink(NcoQ15::with_cfo(black_box(-1.7), N));
+    sink(increment_for_cfo(black_box(2.2), N));
+    sink(cos_sin_q15(black_box(0x1234_5678)));
+
+    let mut sums = DcSumsQ15::new();
+    sums.add(black_box(&b.q15[..]));
+    let dc = black_box(sums.mean());
+    sink(estimate_dc_q15(black_box(&b.q15[..])));
+    sink(estimate_dc_cfo_q15(
+        black_box(b.q15.get(..len).unwrap_or_default()),
+        black_box(0x0100_0000),
+    ));
+    sink(remove_dc_q15(black_box(&mut b.q15[..]), dc));
+    let mut power = PowerQ15::new();
+    power.add(black_box(&b.q15[..]), dc);
+    let target = target_amplitude_q30(black_box(-12.0));
+    sink(gain_for_backoff_q15(black_box(power), black_box(target)));
+
+    if let Ok(mut cp) = CpTrackerQ15::<N, S>::new(nu, black_box(64_887)) {
+        let cp = black_box(&mut cp);
+        cp.push(black_box(&b.q15[..]));
+        sink(cp.estimate());
+        cp.clear();
+    }
+    let mut fft = Q15Fft::<N>::new();
+    if let Ok(mut sco) = ScoEstimatorQ15::<N>::new(nu) {
+        let sco = black_box(&mut sco);
+        if let Some(bins) = prefix::<Cq15, N>(&mut b.equalized_q15[..]) {
+            sink(sco.update(black_box(bins), black_box(1)));
+        }
+        sink(sco.estimate_q32());
+        sco.reset();
+    }
+    sink(increment_for_cfo_q31(black_box(-5_000_000), N));
+    if let (Some(a), Some(w)) = (
+        prefix::<Cq15, N>(&mut b.q15[..]),
+        prefix::<Cq15, N>(&mut b.equalized_q15[..]),
+    ) {
+        let (a, w) = (black_box(&*a), black_box(&*w));
+        sink(total_cfo_q15(
+            nu,
+            &mut fft,
+            a,
+            w,
+            black_box(600_000_000),
+            black_box(4),
+        ));
+        sink(first_path_offset_q15(nu, &mut fft, w, black_box(6554)));
+    }
+
+    let config = black_box(FrameConfigQ15 {
+        threshold_q16: 9411,
+        target_amplitude_q30: 269_711_752,
+        frame_symbols: 10,
+        modulation: Modulation::Qpsk,
+        max_integer_cfo: 4,
+        first_path_q16: 6554,
+        dc_block_shift: 6,
+        sco_q32: 0,
+        track_sco: true,
+    });
+    if let Ok(mut fr) = FrameReceiverQ15::<N, 4, 4, R>::new(nu, opaque_design::<N>(), config) {
+        let fr = black_box(&mut fr);
+        sink(fr.push(black_box(&b.q15[..]), |ev| sink(ev.llrs)));
+        sink(fr.sco_q32());
+    }
+}
+
 /// The demapper entry points (size-independent).
 #[inline(never)]
 fn demapper(b: &mut Buffers) {
@@ -255,17 +364,17 @@ fn main() -> ! {
             llrs_q15: &mut *addr_of_mut!(LLRS_Q15),
         }
     };
-    at_size::<16>(&mut b);
-    at_size::<32>(&mut b);
-    at_size::<64>(&mut b);
-    at_size::<128>(&mut b);
-    at_size::<256>(&mut b);
+    at_size::<16, 18, 128>(&mut b);
+    at_size::<32, 36, 256>(&mut b);
+    at_size::<64, 72, 512>(&mut b);
+    at_size::<128, 144, 1024>(&mut b);
+    at_size::<256, 288, 2048>(&mut b);
     #[cfg(not(core_m0))]
     {
-        at_size::<512>(&mut b);
-        at_size::<1024>(&mut b);
-        at_size::<2048>(&mut b);
-        at_size::<4096>(&mut b);
+        at_size::<512, 576, 4096>(&mut b);
+        at_size::<1024, 1152, 8192>(&mut b);
+        at_size::<2048, 2304, 16384>(&mut b);
+        at_size::<4096, 4608, 32768>(&mut b);
     }
     demapper(&mut b);
     exit(0)

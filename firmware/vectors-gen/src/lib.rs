@@ -15,6 +15,7 @@
 #![deny(missing_docs)]
 
 pub mod rx;
+pub mod sync;
 
 /// Q15 full scale in LSB: a Q15 fraction `v` is `v / FULL_SCALE`.
 pub const FULL_SCALE: f64 = 32768.0;
@@ -116,7 +117,7 @@ impl XorShift64 {
 }
 
 /// Rounds half away from zero and clips to `±CLIP`.
-fn to_q15(v: f64) -> i16 {
+pub(crate) fn to_q15(v: f64) -> i16 {
     let r = libm::round(v);
     if r >= CLIP {
         CLIP as i16

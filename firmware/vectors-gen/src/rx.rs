@@ -177,7 +177,7 @@ const TAPS: usize = 5;
 
 /// Mean power of the transmitter's output, dBFS: `10·log10(Σ|X_k|²/N) − 12.04` (the
 /// transmitter's backoff is 1/4 in amplitude; unit-energy data, pilots at amplitude `A`).
-fn tx_power_dbfs(nu: &Numerology) -> f64 {
+pub fn tx_power_dbfs(nu: &Numerology) -> f64 {
     let a = f64::from(nu.pilot_amplitude());
     let energy = nu.data_len(0) as f64 + a * a * nu.pilot_len(0) as f64;
     10.0 * libm::log10(energy / nu.fft_len() as f64) + 20.0 * libm::log10(0.25)

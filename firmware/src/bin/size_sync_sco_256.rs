@@ -1,0 +1,6 @@
+//! Size probe `size_sync_sco_256`: see `src/size_sync_probe.rs`.
+
+#![no_std]
+#![no_main]
+
+include!("../size_sync_probe.rs");
