@@ -50,13 +50,11 @@
 //! * **Scattered pilots.** The kernel is averaged over the pattern period, which is exact
 //!   when the averaged symbols cover each phase of the pattern equally often.
 //!
-//! ## Towards an integer version
+//! ## Integer version
 //!
-//! The state is plain sums: per delay bin `Σ_symbols |g(n)|²` and a symbol count, no
-//! forgetting factor and no division per symbol. With the Q15 FFT's block exponent the
-//! per-symbol powers are Q30 integers aligned to a common exponent and summed in `u64`; the
-//! moments use integer delays (`n`, `n²` in `i64`, sums in `i128`), and only the three ratios
-//! of [`DelaySpreadEstimator::estimate`] need a division, once per report.
+//! The state is plain sums (per delay bin `Σ_symbols |g(n)|²` and a symbol count, no
+//! forgetting and no division per symbol), which [`crate::delay_spread_q15`] keeps in
+//! integers from the Q15 FFT output and its block exponent.
 //!
 //! ## Valid range
 //!

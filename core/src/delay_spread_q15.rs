@@ -19,12 +19,12 @@
 //! (`|out|²` exact in `u32`, `A` the pilot amplitude, `R` the FFT's residual scale). The
 //! constant `R⁴/A²` is common to every symbol and enters only the channel power. Symbols are
 //! summed per delay bin in `u64` against one reference exponent `E_ref` (block floating
-//! point): a symbol is placed with its values `2^(E − E_ref)` times `|out|²`, at most
-//! `2^16` (so a later symbol up to 16 bits of power louder than the reference still adds
-//! exactly); a louder one first rounds the sums down to make room, and when a sum reaches
-//! `2^62` every sum is halved (rounded) and `E_ref` grows by one. Nothing saturates and no
-//! count limits the averaging; a symbol far quieter than the reference loses its low bits
-//! (it weighs `2^(E − E_ref)` relative to the others, as in the f32 sums).
+//! point): a symbol adds `|out|²·2^(E − E_ref)`, with `E − E_ref` at most 16. The first
+//! symbol sets `E_ref = E − 16`, so later symbols from 16 bits of power quieter up to as loud
+//! add exactly; a louder one first rounds the sums down to make room, a quieter one is
+//! rounded (it weighs `2^(E − E_ref)` relative to the others, as in the f32 sums), and when a
+//! sum reaches `2^62` every sum is halved (rounded) and `E_ref` grows by one. Nothing
+//! saturates and no count limits the averaging.
 //!
 //! Cost per symbol: two passes over the pilots, one `N`-point Q15 inverse FFT and one
 //! multiply-add per delay bin of the moment window and the noise region.

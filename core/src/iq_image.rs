@@ -51,12 +51,11 @@
 //! * Only pairs of data bins enter (pilots are BPSK and non-circular); DC and unpaired bins
 //!   do not.
 //!
-//! ## Towards an integer version
+//! ## Integer version
 //!
-//! The state is four plain sums and a count: `C` (complex), `P`, `Q` and the pair count.
-//! With Q15 bins, `Y_k Y_{−k}` and `|Y|²` are Q30 products summed in `i64`/`u64` (per symbol
-//! first, then into the totals), `Q` in `u128` or pre-shifted by 30 bits; the final `|C|²`,
-//! the square root and the logarithm run once per report.
+//! The state is four plain sums and a count (`C`, `P`, `Q`, pairs), which
+//! [`crate::iq_image_q15`] keeps exactly in integers from the Q15 FFT output and its block
+//! exponent.
 
 use crate::error::{ConfigError, ProcessError};
 use crate::numerology::Numerology;

@@ -9,10 +9,10 @@
 //! `i16` parts (Q30), summed per symbol (`i64`, `u64`; `Q`'s products, below 2^62, in `u128`).
 //! With the bins' exponent `e` the symbol's sums are worth `2^(2e − 30)` (`C`, `P`) and
 //! `2^(2(2e − 30))` (`Q`) in Q15 fractions of the unitary DFT. They join the totals (`i128`,
-//! `u128`) against one reference exponent, placed up to 2^16 above it so that later symbols
-//! up to 16 bits of power louder still add exactly; a louder one rounds the totals down
-//! first, and totals that reach 2^124 are halved (`Q` quartered) with the exponent raised by
-//! one. The common residual scale `R` of the FFT cancels in every ratio.
+//! `u128`) against one reference exponent, at most 2^16 above it: the first symbol sets the
+//! reference 16 bits below its own, so later symbols from 16 bits of power quieter up to as
+//! loud add exactly; a louder one rounds the totals down first, a quieter one is rounded, and
+//! totals that reach 2^124 are halved (`Q` quartered) with the exponent raised by one. The common residual scale `R` of the FFT cancels in every ratio.
 //!
 //! ## Per report ([`IqImageEstimatorQ15::estimate`])
 //!
