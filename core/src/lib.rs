@@ -86,6 +86,7 @@ pub mod delay_spread;
 pub mod delay_spread_q15;
 pub mod demap;
 pub mod doppler;
+pub mod doppler_q15;
 pub mod equalize;
 pub mod error;
 pub mod estimate;
