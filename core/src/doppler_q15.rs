@@ -44,8 +44,8 @@
 //! * The inversion of `g(y) = J0(2y)/J0(y)` with the same second-order FFT-window correction
 //!   as f32: `1 − g = num/den` with `num = (J0(y) − J0(2y)) + h(J0''(y) − J0''(2y))`,
 //!   `den = J0(y) + h·J0''(y)`, `h = k2·y²/2`. `1 − J0(x)` and `J1(x)/x` (for
-//!   `J0'' = −J0 + J1/x`) come from their power series in `u = x²/4` (A&S 9.1.10 and 9.1.10
-//!   with 9.1.27, from memory) in the nested form `1 − (u/k²)(1 − …)` with 12 factors in
+//!   `J0'' = −J0 + J1/x`, A&S 9.1.27) come from their ascending series in `u = x²/4` (A&S
+//!   9.1.10; both from memory) in the nested form `1 − (u/k²)(1 − …)` with 12 factors in
 //!   Q30, reciprocals of `k²` and `k(k+1)` as Q32 constants: truncation below `10⁻¹³` at the
 //!   largest argument `x = 3.4`, rounding a few `2^−30` per value. Bisection over `y` in Q30
 //!   on `[0, 1.7]` compares `num·2^30` with `d·den` (no division; `den ≥ 0.28`), 28 steps:
@@ -56,18 +56,22 @@
 //! * Output `fd·Tsym = y/(2π·τ)` in Q31 by the constant `2^32/π` and one division by `τ`;
 //!   `fd·T = fd·Tsym·N/(N + L)`.
 //!
-//! On the same bins the two estimators differ by their arithmetic only: f32 sums round at
-//! `2^−24` per addition, these sums at `2^−60`, and the inversion differs by the figures above
-//! (`tests/doppler_q15.rs` checks the agreement, and the accuracy on its own).
+//! On the same samples the two estimators differ by their arithmetic only: the Q15 FFT's
+//! rounding (73 dB below the pilots at −12 dBFS), f32 sums rounding at `2^−24` per addition
+//! against `2^−60` here, and the inversion figures above. On the frames of `tests/doppler.rs`
+//! (`tests/doppler_q15.rs`, 1950 fading trials) the status and lag were the same in every
+//! trial and `fd·Tsym` within `1.2·10⁻⁵` relative; the accuracy is the f32 estimator's (90th
+//! percentile of the relative error 8.4–9.3 % over ten periods on an exponential profile).
 //!
 //! ## Cost
 //!
 //! Per symbol: `pilots × levels` complex multiply-adds with four `i16·i16 → i32` products
-//! each (single-cycle `MULS` on a Cortex-M0), `pilots` squares, one PRBS replay per lag level
+//! each (one `MULS` each on a Cortex-M0; no 64-bit multiply), `pilots` squares, one PRBS replay per lag level
 //! for the partner symbol's pilot signs, and about `4·levels` `i64` shifts to keep the sums
 //! aligned. Per estimate: up to three inversions of 28 steps, each step four series of 12
 //! `i64` multiply-shifts; a few `i128` multiplications and divisions. Memory: `H × P` `Cq15`
-//! of history (half the f32 estimator's) plus per-slot exponent, power and symbol index.
+//! of history (half the f32 estimator's) plus per-slot exponent, power and symbol index
+//! (about 3 KB in all for `P = 16`, `H = 32`).
 
 use crate::doppler::{DopplerEstimate, DopplerStatus, MAX_LAG_LEVELS};
 use crate::error::{ConfigError, ProcessError};
@@ -783,7 +787,7 @@ fn window_k2_q30(n: usize, symbol_len: usize, lag: u32) -> i64 {
     let span = u64::from(lag).saturating_mul(symbol_len as u64);
     let den = span.checked_mul(span).and_then(|s| s.checked_mul(6));
     match den {
-        Some(d) if d > 0 => i64::try_from((num + d / 2) / d).unwrap_or(0),
+        Some(d) if d > 0 => i64::try_from(num.saturating_add(d / 2) / d).unwrap_or(0),
         _ => 0,
     }
 }
@@ -987,6 +991,13 @@ mod tests {
             }
         }
         b
+    }
+
+    #[test]
+    fn memory_is_as_documented() {
+        // Module docs: about 3 KB for P = 16, H = 32 (measured 2968 bytes on x86-64).
+        let size = core::mem::size_of::<DopplerEstimatorQ15<64, 16, 32>>();
+        assert!((2800..=3100).contains(&size), "{size}");
     }
 
     #[test]
