@@ -1135,6 +1135,62 @@ mod tests {
     }
 
     #[test]
+    fn scattered_pilots_pair_the_same_bins_and_signs() {
+        // Spacing 4, shift 1: the comb repeats every u = 4 symbols, lags 4, 8, 16. A static
+        // frequency-selective channel (delay 3 samples, H_k = e^{−j2πk·3/64}) has zero Doppler
+        // only if each product pairs a bin with itself and its own pilot sign (as the f32
+        // unit test); then a time-varying one on the same comb agrees with f32.
+        let mut p = NumerologyParams::default();
+        p.pilots.shift_per_symbol = 1;
+        let nu = Numerology::new(p).unwrap();
+        assert_eq!(nu.pattern_period(), 4);
+        let bins = |m: u32, w: f32| {
+            let mut b = [Cq15::ZERO; 64];
+            for (i, x) in PilotIter::new(&nu, m) {
+                let k = if i < 32 { i as f32 } else { i as f32 - 64.0 };
+                let ph = -2.0 * core::f32::consts::PI * k * 3.0 / 64.0 + w * m as f32;
+                if let Some(v) = b.get_mut(i) {
+                    *v = Cq15::from_cf32(Cf32::new(libm::cosf(ph), libm::sinf(ph)) * x * 0.5);
+                }
+            }
+            b
+        };
+        let mut e =
+            DopplerEstimatorQ15::<64, 16, 32>::new(&nu, DopplerConfigQ15::default()).unwrap();
+        let lags: [u32; 3] = [4, 8, 16];
+        assert!(e.lags().eq(lags.iter().copied()));
+        for m in 0..80u32 {
+            e.update(&bins(m, 0.0), 0, m).unwrap();
+        }
+        let est = e.estimate().unwrap();
+        assert_ne!(est.status, DopplerStatus::AboveRange, "{est:?}");
+        assert_eq!(est.lag_symbols % 4, 0);
+        assert!(est.to_f32().fd_tsym < 1e-3, "{est:?}");
+        // Two lines of different Doppler on the same comb: as the f32 estimator.
+        let mut q =
+            DopplerEstimatorQ15::<64, 16, 32>::new(&nu, DopplerConfigQ15::default()).unwrap();
+        let mut f = DopplerEstimator::<64, 16, 32>::new(&nu, DopplerConfig::default()).unwrap();
+        for m in 0..200u32 {
+            let (a, b) = (bins(m, 0.02), bins(m, -0.015));
+            let mut sum = [Cq15::ZERO; 64];
+            let mut bf = [Cf32::new(0.0, 0.0); 64];
+            for (((o, of), x), y) in sum.iter_mut().zip(bf.iter_mut()).zip(&a).zip(&b) {
+                *o = Cq15::new(x.re / 2 + y.re / 2, x.im / 2 + y.im / 2);
+                *of = o.to_cf32();
+            }
+            q.update(&sum, 2, m).unwrap();
+            f.update(&bf, m).unwrap();
+        }
+        let (a, b) = (q.estimate().unwrap().to_f32(), f.estimate().unwrap());
+        assert_eq!(
+            (a.status, a.lag_symbols),
+            (b.status, b.lag_symbols),
+            "{a:?} {b:?}"
+        );
+        assert!((a.fd_tsym / b.fd_tsym - 1.0).abs() < 1e-4, "{a:?} {b:?}");
+    }
+
+    #[test]
     fn extreme_inputs_never_panic() {
         let nu = numerology();
         let mut e =

@@ -107,6 +107,7 @@ pub mod link_report;
 pub mod modulation;
 pub mod nco;
 pub mod noise_track;
+pub mod noise_track_q15;
 pub mod numerology;
 pub mod packed;
 pub mod pilots;

@@ -44,6 +44,7 @@ use crate::fft::OfdmFft;
 use crate::fixed::{sat16, Cq15};
 use crate::fixed_math::{inv_sqrt, reciprocal, sat16_64, shift_round, Scaled};
 use crate::modulation::Modulation;
+use crate::noise_track_q15::POWER_FRAC_BITS;
 use crate::numerology::{BinKind, Numerology};
 use crate::pilots::Prbs15;
 use crate::Cf32;
@@ -292,6 +293,10 @@ pub struct ReceiverQ15<F, const N: usize, const K: usize, const M: usize> {
     estimate_exp: i32,
     /// Components clipped by the digital gain in the latest symbol.
     clipped: usize,
+    /// Common phase applied to the latest symbol's estimate (`None`: none).
+    rot: Option<Cq15>,
+    /// LLR weight per used bin in use: the design's, or from [`Self::set_bin_noise`].
+    weight: [Scaled; N],
 }
 
 /// What [`ReceiverQ15::receive`] wrote.
@@ -321,6 +326,7 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
                 stage: N,
             });
         }
+        let weight = design.weight;
         Ok(Self {
             numerology: *numerology,
             fft,
@@ -341,6 +347,8 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
             estimate: [Cq15::ZERO; N],
             estimate_exp: 0,
             clipped: 0,
+            rot: None,
+            weight,
         })
     }
 
@@ -390,6 +398,61 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
     /// The design in use.
     pub fn design(&self) -> &DesignQ15<N, K, M> {
         &self.design
+    }
+
+    /// The common-phase rotation (Q15 unit phasor) applied to the latest symbol's channel
+    /// estimate before equalization; `None` when CPE correction is off or found no pilots.
+    pub fn applied_common_phase(&self) -> Option<Cq15> {
+        self.rot
+    }
+
+    /// Sets the noise-plus-interference variance of each used bin (ascending frequency, at
+    /// least `used_len` values) that weights the LLRs from now on, e.g. from
+    /// [`crate::noise_track_q15::NoiseTrackerQ15::bin_noise`]: FFT-output power ×
+    /// 2^[`crate::noise_track_q15::POWER_FRAC_BITS`] (u64), with the estimator's MSE per
+    /// used bin in the same format
+    /// ([`crate::noise_track_q15::NoiseTrackDesignQ15::estimator_mse`]) added to it as the
+    /// f32 receiver does. Weight per bin: `2^44/(noise + mse)`, one [`reciprocal`] each;
+    /// integer only. Errors (nothing changed): a slice too short, or a bin whose total is 0
+    /// (`OutOfRange` with its index).
+    pub fn set_bin_noise(
+        &mut self,
+        noise: &[u64],
+        estimator_mse: &[u64],
+    ) -> Result<(), ProcessError> {
+        let used = self.numerology.used_len();
+        for s in [noise, estimator_mse] {
+            if s.len() < used {
+                return Err(ProcessError::BufferLength {
+                    expected: used,
+                    actual: s.len(),
+                });
+            }
+        }
+        if let Some(index) = noise
+            .iter()
+            .zip(estimator_mse)
+            .take(used)
+            .position(|(&n, &m)| n.saturating_add(m) == 0)
+        {
+            return Err(ProcessError::OutOfRange { index });
+        }
+        for (w, (&n, &m)) in self.weight.iter_mut().zip(noise.iter().zip(estimator_mse)) {
+            *w = inverse_power(n.saturating_add(m));
+        }
+        Ok(())
+    }
+
+    /// Back to the design's LLR weights (its configured `noise_var` on every bin).
+    pub fn clear_bin_noise(&mut self) {
+        self.weight = self.design.weight;
+    }
+
+    /// The LLR weight per used bin in use (per unit of `|Ĥ|²` in FFT output units).
+    pub fn llr_weights(&self) -> &[Scaled] {
+        self.weight
+            .get(..self.numerology.used_len())
+            .unwrap_or_default()
     }
 
     /// Receives symbol `symbol` from its `N + L` Q15 samples: equalized data symbols (Q3.12,
@@ -442,6 +505,7 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
         } else {
             None
         };
+        self.rot = rot;
         let mut count = 0usize;
         let e_h = self.estimate_exp;
         for b in nu.bins(symbol).filter(|b| b.kind == BinKind::Data) {
@@ -450,12 +514,7 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
             if let Some(c) = rot {
                 h = cmul_q15(h, c);
             }
-            let w = self
-                .design
-                .weight
-                .get(b.used_index)
-                .copied()
-                .unwrap_or_default();
+            let w = self.weight.get(b.used_index).copied().unwrap_or_default();
             let (x, weight) = equalize_bin(y, h, e_b - e_h, e_h, w);
             if let (Some(xo), Some(so)) = (equalized.get_mut(count), sinr.get_mut(count)) {
                 *xo = x;
@@ -704,6 +763,27 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
             }
         }
         unit_phasor(re, im)
+    }
+}
+
+/// `2^44/t` as [`Scaled`] for `t > 0` (zero weight for 0): `t` normalised to 32 bits,
+/// one [`reciprocal`].
+fn inverse_power(t: u64) -> Scaled {
+    let sh = (64 - t.leading_zeros() as i32 - 32).max(0);
+    let Some((r, s)) = reciprocal((t >> sh) as u32) else {
+        return Scaled::default();
+    };
+    // 2^44/t = r·2^(s − 30 − sh + 44), r ∈ [2^30, 2^31]: mantissa r/2^16 (Q15), so the
+    // exponent is s − sh + 44 + 1.
+    let mant = shift_round(r, 16) as i32;
+    let exp = s - sh + POWER_FRAC_BITS as i32 + 1;
+    if mant >= 1 << 15 {
+        Scaled {
+            mant: mant >> 1,
+            exp: exp + 1,
+        }
+    } else {
+        Scaled { mant, exp }
     }
 }
 
