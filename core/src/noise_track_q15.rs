@@ -30,11 +30,12 @@
 //! channel estimate) are aligned to this one reference before anything is added, so powers of
 //! symbols scaled differently by the block-floating-point FFT compare directly.
 //!
-//! **Headroom.** One LSB is 2^−44 of FFT-output power (−132 dB; Q15 input quantisation noise
-//! at any level the FFT keeps sits above 2^−36 per bin). Every stored power is capped at
-//! [`POWER_MAX`] = 2^62 − 1, i.e. FFT-output power 2^18; a full-scale tone at N = 4096 has
-//! power 2^12. Per-frame sums therefore hold about 2^22 observations at −12 dBFS before
-//! they saturate. Anything that clips sets [`STAT_SATURATED`] in the frame statistics.
+//! **Headroom.** One LSB is 2^−44 of FFT-output power (−132 dB; the quantisation noise of Q15
+//! input, 2^−30/6 per sample and so per bin, lies 11 bits above it). Every stored power is
+//! capped at [`POWER_MAX`] = 2^62 − 1, i.e. FFT-output power 2^18; a full-scale tone at
+//! N = 4096 has power 2^12. A data bin at −12 dBFS carries about 2^41, so per-frame sums hold
+//! about 2^21 observations before they saturate. Anything that clips sets
+//! [`STAT_SATURATED`] in the frame statistics.
 //!
 //! ## Choices where integers differ from the f32 tracker
 //!
@@ -48,6 +49,19 @@
 //! * The DD bias correction interpolates the ratio `σ²/ε` linearly in `ε` between the 64
 //!   table points (the f32 interpolates `log σ²`; the two differ by second-order terms over
 //!   a 24 % step in σ²).
+//!
+//! ## Measured (tests/noise_track_q15.rs, N = 64, −12 dBFS, frames of 20 symbols)
+//!
+//! Against the f32 tracker with the same settings on the same Q15 samples, 0–30 dB, AWGN and
+//! exponential 0.5-sample fading: SNR within 0.006 dB per frame, except 2 of 4200 frames at
+//! 30 dB where the pilot/null pooling gate (a hard threshold) went the other way (0.27 dB);
+//! on its own: SNR bias within ±0.29 dB, sd ≤ 0.62 dB per frame. With the per-bin weights in
+//! [`crate::receiver_q15::ReceiverQ15::set_bin_noise`], 16-QAM at 20 dB with a CW or a 3-bin
+//! burst 10 dB over the noise: bitwise MI of the i8 LLRs on the hit bins within 0.005 bit of
+//! true N+I weighting, 0.7–0.9 bit above flat weighting.
+//!
+//! **Memory.** Tracker state about `38·N` bytes plus its design (`24·N` bytes and 5 KiB of
+//! DD tables, which firmware can keep in flash).
 //!
 //! Configuration ([`NoiseTrackDesignQ15::new`], [`DdTableQ15::new`]) and the test-side
 //! conversion [`NoiseStatsQ15::to_f32`] use floating point on the host; everything per
