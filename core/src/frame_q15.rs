@@ -157,26 +157,6 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiv
         })
     }
 
-    fn copy_out(&self, from: u64, out: &mut [Cq15]) {
-        for (i, o) in out.iter_mut().enumerate() {
-            *o = self
-                .ring
-                .get(((from + i as u64) % R as u64) as usize)
-                .copied()
-                .unwrap_or_default();
-        }
-    }
-
-    fn remove_dc(&self, x: &mut [Cq15]) {
-        let dc = self.dc;
-        if dc == Cq15::ZERO {
-            return;
-        }
-        for v in x.iter_mut() {
-            *v = Cq15::new(v.re.saturating_sub(dc.re), v.im.saturating_sub(dc.im));
-        }
-    }
-
     /// Consumes `samples` (any chunk size), calling `on_symbol` for each data symbol decoded.
     pub fn push(
         &mut self,
@@ -207,8 +187,8 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiv
                     }
                     let mut a = [Cq15::ZERO; N];
                     let mut b = [Cq15::ZERO; N];
-                    self.copy_out(w, &mut a);
-                    self.copy_out(w + ns, &mut b);
+                    copy_out(&self.ring, w, &mut a);
+                    copy_out(&self.ring, w + ns, &mut b);
                     let cfo_q16 = total_cfo_q15(
                         &self.numerology,
                         &mut self.fft,
@@ -221,16 +201,14 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiv
                     // DC over the span from A's window to the end of B's (CFO-aware: the plain
                     // mean picks up leakage of the bins next to DC; zero when it cannot tell).
                     let span = (ns + n_len) as usize;
-                    let mut buf = self.sym;
-                    self.dc = match buf.get_mut(..span) {
+                    self.dc = match self.sym.get_mut(..span) {
                         Some(s) => {
-                            self.copy_out(w, s);
+                            copy_out(&self.ring, w, s);
                             estimate_dc_cfo_q15(s, inc).unwrap_or(Cq15::ZERO)
                         }
                         None => Cq15::ZERO,
                     };
-                    self.sym = buf;
-                    self.remove_dc(&mut b);
+                    remove_dc(self.dc, &mut b);
                     self.nco.set_increment(inc);
                     self.nco.set_phase(0);
                     self.nco.advance(ns);
@@ -274,16 +252,14 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> FrameReceiv
                     let resid = crate::fixed_math::shift_round(drift - (slip << 32), 16);
                     self.rx.set_timing_offset_q16(resid as i32);
                     let len = ns as usize;
-                    let mut buf = self.sym;
                     let mut clipped = 0;
-                    if let Some(s) = buf.get_mut(..len) {
-                        self.copy_out(from, s);
-                        self.remove_dc(s);
+                    if let Some(s) = self.sym.get_mut(..len) {
+                        copy_out(&self.ring, from, s);
+                        remove_dc(self.dc, s);
                         self.nco.set_phase(0);
                         self.nco.advance(from.saturating_sub(origin));
                         clipped += self.nco.derotate(s);
                     }
-                    self.sym = buf;
                     let counts = self.rx.receive(
                         self.sym.get(..len).unwrap_or_default(),
                         symbol,
@@ -370,5 +346,25 @@ impl<const N: usize, const K: usize, const M: usize, const R: usize> core::fmt::
             .field("seen", &self.seen)
             .field("state", &self.state)
             .finish()
+    }
+}
+
+/// Copies `out.len()` samples of the ring buffer from stream index `from`.
+fn copy_out<const R: usize>(ring: &[Cq15; R], from: u64, out: &mut [Cq15]) {
+    for (i, o) in out.iter_mut().enumerate() {
+        *o = ring
+            .get(((from + i as u64) % R as u64) as usize)
+            .copied()
+            .unwrap_or_default();
+    }
+}
+
+/// Subtracts the DC estimate `dc` (saturating).
+fn remove_dc(dc: Cq15, x: &mut [Cq15]) {
+    if dc == Cq15::ZERO {
+        return;
+    }
+    for v in x.iter_mut() {
+        *v = Cq15::new(v.re.saturating_sub(dc.re), v.im.saturating_sub(dc.im));
     }
 }
