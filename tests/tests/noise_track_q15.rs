@@ -782,3 +782,144 @@ fn per_bin_weights_follow_the_noise_set() {
         assert!((4.0 * val(a) / val(b) - 1.0).abs() < 1e-4, "{a:?} vs {b:?}");
     }
 }
+
+#[test]
+fn a_gain_step_between_frames_is_carried_into_the_noise_memory() {
+    // The digital gain rises by 6.02 dB (amplitude × 2, power × 4) between frames. A tracker
+    // told of it (start_frame_with_gain(4)) rescales its noise-floor memory and reads the SNR
+    // as the f32 tracker told the same (start_frame(4.0)) does, within the continuous bound
+    // of integer_snr_agrees_with_the_f32_tracker_and_meets_the_target (0.23 dB); one not told
+    // mixes a memory 4× too low into N0: with μ = 0.8 the memory holds 4 frames' worth beside
+    // the new frame's 1, so N0 reads ≈ (1 + 4/4)/5 = 0.4 of the truth and the SNR ≈ 4 dB high
+    // (checked: more than 1 dB high). AWGN, Es/N0 15 dB, QPSK.
+    use flatbin::receiver_q15::DigitalGain;
+    let nu = nu();
+    let m = Modulation::Qpsk;
+    let es_n0_db = 15.0;
+    let n0 = 10f64.powf(-es_n0_db / 10.0);
+    let (scale, _) = scales(&nu);
+    let mut tx = Transmitter::new(nu, MicroFft::<N>::new()).unwrap();
+    let mut rng = stream_rng(801, 0);
+    let mut rx = rx_q(&nu);
+    let mut rx_f = rx_f(&nu);
+    let (mut told, mut untold) = (tracker_q(&nu), tracker_q(&nu));
+    let mut tr_f = tracker_f_mirrored(&nu);
+    let d = nu.max_data_len();
+    let (mut xq, mut sq, mut lq) = (
+        vec![Cq15::ZERO; d],
+        vec![Scaled::default(); d],
+        vec![0i8; d * m.bits_per_symbol()],
+    );
+    let (mut xf, mut sf, mut lf) = (
+        vec![Cf32::default(); d],
+        vec![0.0f32; d],
+        vec![0.0f32; d * m.bits_per_symbol()],
+    );
+    let taps = [(0usize, Cf32::new(1.0, 0.0))];
+    let four = Scaled {
+        mant: 16384,
+        exp: 3,
+    };
+    let (mut err_told, mut err_untold) = (Vec::new(), Vec::new());
+    for frame in 0..16 {
+        // Frames 0..10 at −18 dBFS (half the amplitude), then the gain doubles it.
+        let step = frame == 10;
+        let (gain, amp) = if frame < 10 {
+            (DigitalGain::UNITY, 0.5)
+        } else {
+            (DigitalGain::from_db(20.0 * 2f32.log10()), 1.0)
+        };
+        rx.set_gain(gain);
+        rx.reset();
+        rx_f.reset();
+        if step {
+            told.start_frame_with_gain(four);
+            tr_f.start_frame(4.0);
+        } else {
+            told.start_frame();
+            tr_f.start_frame(1.0);
+        }
+        untold.start_frame();
+        let mut prev = vec![Cf32::default(); nu.symbol_len()];
+        for sym in 0..SYMBOLS {
+            let (r, _) = channel_symbol(&nu, &mut tx, &mut rng, &taps, &mut prev, sym, m, n0);
+            // The radio delivers half the amplitude; the Q15 receiver's gain restores it after
+            // the step; the f32 receiver sees the level the Q15 FFT sees.
+            let (q, back) = quantise(&r, scale * 0.5);
+            let back: Vec<Cf32> = back.iter().map(|v| v * amp as f32).collect();
+            let c = rx.receive(&q, sym, m, &mut xq, &mut sq, &mut lq).unwrap();
+            for tr in [&mut told, &mut untold] {
+                tr.update_from_receiver(sym, &rx, &xq[..c.data_bins], m)
+                    .unwrap();
+            }
+            let c = rx_f
+                .receive(&back, sym, m, &mut xf, &mut sf, &mut lf)
+                .unwrap();
+            tr_f.update(
+                sym,
+                rx_f.bins(),
+                rx_f.estimator(),
+                rx_f.common_phase(),
+                &xf[..c.data_bins],
+                m,
+            )
+            .unwrap();
+        }
+        let (a, b) = (
+            f64::from(told.frame_stats().snr_db_q8) / 256.0,
+            f64::from(untold.frame_stats().snr_db_q8) / 256.0,
+        );
+        let f = f64::from(tr_f.frame_stats().snr_db);
+        if (10..13).contains(&frame) {
+            println!(
+                "frame {frame}: told {a:.3} dB, not told {b:.3} dB, f32 told {f:.3} dB, \
+                 true {es_n0_db} dB"
+            );
+            assert!((a - f).abs() <= 0.23, "frame {frame}: {a} vs f32 {f}");
+            err_told.push(a - es_n0_db);
+            err_untold.push(b - es_n0_db);
+        }
+    }
+    assert!(
+        err_untold[0] > 1.0,
+        "the step should bias an untold tracker: {err_untold:?}"
+    );
+    assert!(
+        err_told[0] < err_untold[0] - 1.0,
+        "{err_told:?} vs {err_untold:?}"
+    );
+}
+
+#[test]
+fn invalid_settings_are_rejected() {
+    use flatbin::ConfigError;
+    let nu = nu();
+    let ok = NoiseTrackConfigQ15::default();
+    for bad in [
+        NoiseTrackConfigQ15 {
+            lambda_shift: 16,
+            ..ok
+        },
+        NoiseTrackConfigQ15 {
+            detect_ratio_q8: 256,
+            ..ok
+        },
+        NoiseTrackConfigQ15 {
+            frame_lambda_q16: 65536,
+            ..ok
+        },
+    ] {
+        assert!(matches!(
+            NoiseTrackerQ15::new(&nu, track_design(&nu), bad),
+            Err(ConfigError::TrackerSetting)
+        ));
+    }
+    assert!(matches!(
+        NoiseTrackDesignQ15::<N>::new::<4, 4>(&nu, &q_config(), f32::NAN),
+        Err(ConfigError::TrackerSetting)
+    ));
+    assert!(matches!(
+        NoiseTrackDesignQ15::<128>::new::<4, 4>(&nu, &q_config(), R),
+        Err(ConfigError::FftSizeMismatch { .. })
+    ));
+}
