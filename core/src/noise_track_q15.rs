@@ -610,7 +610,7 @@ impl<const N: usize> NoiseTrackerQ15<N> {
             self.observe_known(k, o);
         }
         // Pilots and data.
-        let table = self.design.dd.get(modulation_index(modulation)).copied();
+        let table = modulation_index(modulation);
         let mut prbs = Prbs15::for_symbol(nu.params().pilots.seed, symbol);
         let mut count = 0usize;
         for b in nu.bins(symbol) {
@@ -643,7 +643,7 @@ impl<const N: usize> NoiseTrackerQ15<N> {
                     self.data_power = sat_add(self.data_power, py, &mut sat);
                     self.data_n = self.data_n.saturating_add(1);
                     let dh = power_at(h, e_h, &mut sat);
-                    self.observe_data(b.fft_index, b.used_index, err, dh, table.as_ref());
+                    self.observe_data(b.fft_index, b.used_index, err, dh, table);
                 }
             }
         }
@@ -758,8 +758,8 @@ impl<const N: usize> NoiseTrackerQ15<N> {
     }
 
     /// A data-bin observation: DD error `err` (Q24) and channel power `dh` (power units) of
-    /// FFT bin `k`, used bin `u`.
-    fn observe_data(&mut self, k: usize, u: usize, err: u64, dh: u64, table: Option<&DdTableQ15>) {
+    /// FFT bin `k`, used bin `u`, DD table `table` (index in [`Modulation::ALL`]).
+    fn observe_data(&mut self, k: usize, u: usize, err: u64, dh: u64, table: usize) {
         let s = match self.seen.get_mut(k) {
             Some(s) => {
                 *s = s.saturating_add(1);
@@ -775,7 +775,10 @@ impl<const N: usize> NoiseTrackerQ15<N> {
         let ah = self.forget(ah, obs, s);
         let e = self.design.estimator_mse.get(u).copied().unwrap_or(0);
         let r = if ae > 0 {
-            table.map_or(1 << RATIO_FRAC_BITS, |t| t.ratio_q16(ae))
+            self.design
+                .dd
+                .get(table)
+                .map_or(1 << RATIO_FRAC_BITS, |t| t.ratio_q16(ae))
         } else {
             1 << RATIO_FRAC_BITS
         };
