@@ -295,8 +295,6 @@ pub struct ReceiverQ15<F, const N: usize, const K: usize, const M: usize> {
     clipped: usize,
     /// Common phase applied to the latest symbol's estimate (`None`: none).
     rot: Option<Cq15>,
-    /// LLR weight per used bin in use: the design's, or from [`Self::set_bin_noise`].
-    weight: [Scaled; N],
 }
 
 /// What [`ReceiverQ15::receive`] wrote.
@@ -326,7 +324,6 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
                 stage: N,
             });
         }
-        let weight = design.weight;
         Ok(Self {
             numerology: *numerology,
             fft,
@@ -348,7 +345,6 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
             estimate_exp: 0,
             clipped: 0,
             rot: None,
-            weight,
         })
     }
 
@@ -413,8 +409,9 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
     /// used bin in the same format
     /// ([`crate::noise_track_q15::NoiseTrackDesignQ15::estimator_mse`]) added to it as the
     /// f32 receiver does. Weight per bin: `2^44/(noise + mse)`, one [`reciprocal`] each;
-    /// integer only. Errors (nothing changed): a slice too short, or a bin whose total is 0
-    /// (`OutOfRange` with its index).
+    /// integer only. The weights are written over the design's own (`design().weight`; no
+    /// second N-sized table: RAM is short on a Cortex-M0). Errors (nothing changed): a slice
+    /// too short, or a bin whose total is 0 (`OutOfRange` with its index).
     pub fn set_bin_noise(
         &mut self,
         noise: &[u64],
@@ -437,20 +434,30 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
         {
             return Err(ProcessError::OutOfRange { index });
         }
-        for (w, (&n, &m)) in self.weight.iter_mut().zip(noise.iter().zip(estimator_mse)) {
+        for (w, (&n, &m)) in self
+            .design
+            .weight
+            .iter_mut()
+            .zip(noise.iter().zip(estimator_mse))
+        {
             *w = inverse_power(n.saturating_add(m));
         }
         Ok(())
     }
 
-    /// Back to the design's LLR weights (its configured `noise_var` on every bin).
-    pub fn clear_bin_noise(&mut self) {
-        self.weight = self.design.weight;
+    /// Back to one noise level on every bin: the LLR weights `weights` (per used bin), e.g.
+    /// the `weight` table of the [`DesignQ15`] the receiver was built from (a static table in
+    /// firmware). Extra entries are ignored; missing ones keep their value.
+    pub fn clear_bin_noise(&mut self, weights: &[Scaled]) {
+        for (d, s) in self.design.weight.iter_mut().zip(weights) {
+            *d = *s;
+        }
     }
 
     /// The LLR weight per used bin in use (per unit of `|Ĥ|²` in FFT output units).
     pub fn llr_weights(&self) -> &[Scaled] {
-        self.weight
+        self.design
+            .weight
             .get(..self.numerology.used_len())
             .unwrap_or_default()
     }
@@ -514,7 +521,12 @@ impl<F: OfdmFft<N, Sample = Cq15>, const N: usize, const K: usize, const M: usiz
             if let Some(c) = rot {
                 h = cmul_q15(h, c);
             }
-            let w = self.weight.get(b.used_index).copied().unwrap_or_default();
+            let w = self
+                .design
+                .weight
+                .get(b.used_index)
+                .copied()
+                .unwrap_or_default();
             let (x, weight) = equalize_bin(y, h, e_b - e_h, e_h, w);
             if let (Some(xo), Some(so)) = (equalized.get_mut(count), sinr.get_mut(count)) {
                 *xo = x;
