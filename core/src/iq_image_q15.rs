@@ -342,29 +342,9 @@ fn rho_q31(c2_q62: u64) -> u32 {
     }
 }
 
-/// `log2 x` for `x ≥ 1`, × 2^16, rounded: the integer part from the bit length, 20 fraction
-/// bits by repeated squaring of the mantissa (common practice), rounded to 16.
+/// `log2 x` × 2^16 for `x ≥ 1` ([`crate::fixed_math::log2_q16`]); `i32::MIN` for 0.
 pub(crate) fn log2_q16(x: u32) -> i32 {
-    if x == 0 {
-        return i32::MIN;
-    }
-    let ip = 31 - x.leading_zeros() as i32;
-    // Mantissa in [1, 2) as Q30.
-    let mut m: u64 = if ip <= 30 {
-        u64::from(x) << (30 - ip).unsigned_abs()
-    } else {
-        u64::from(x) >> (ip - 30).unsigned_abs()
-    };
-    let mut frac: i32 = 0;
-    for _ in 0..20 {
-        m = (m * m) >> 30;
-        frac <<= 1;
-        if m >= 1 << 31 {
-            m >>= 1;
-            frac |= 1;
-        }
-    }
-    (ip << 16) + ((frac + 8) >> 4)
+    crate::fixed_math::log2_q16(u64::from(x)).unwrap_or(i32::MIN)
 }
 
 /// `−20·log10 ρ` in dB × 256 for `ρ` in Q31 (floored at 2^-31).

@@ -1153,32 +1153,14 @@ fn median(v: &mut [u64]) -> u64 {
     }
 }
 
-/// `log2(x)` in Q16 for `x > 0` (0 for 0): integer part from the leading bit, fraction by
-/// repeated squaring of the mantissa (one bit per squaring; common practice).
-pub fn log2_q16(x: u64) -> i64 {
-    if x == 0 {
-        return 0;
-    }
-    let int = 63 - i64::from(x.leading_zeros());
-    // Mantissa in [2^31, 2^32): the value 1.f in Q31.
-    let mut m = if int >= 31 {
-        x >> (int - 31)
-    } else {
-        x << (31 - int)
-    };
-    let mut frac = 0i64;
-    for i in (0..16).rev() {
-        m = (m * m) >> 31; // m < 2^32: m² < 2^64; result in [2^31, 2^33)
-        if m >= 1 << 32 {
-            m >>= 1;
-            frac |= 1 << i;
-        }
-    }
-    int * 65536 + frac
+/// `log2(x)` in Q16 for `x > 0` (0 for 0): [`crate::fixed_math::log2_q16`].
+fn log2_q16(x: u64) -> i64 {
+    crate::fixed_math::log2_q16(x).map_or(0, i64::from)
 }
 
-/// `10·log10(a/b)` in dB × 256 for `a, b > 0` (0 otherwise).
-pub fn db_q8(a: u64, b: u64) -> i32 {
+/// `10·log10(a/b)` in dB × 256 for `a, b > 0` (0 otherwise), without the i16 saturation of
+/// [`crate::fixed_math::ratio_db_q8`].
+fn db_q8(a: u64, b: u64) -> i32 {
     if a == 0 || b == 0 {
         return 0;
     }
