@@ -6,7 +6,9 @@
 //! Cholesky) for the settings in `vectors_gen::rx`, so the firmware gets integers only and a
 //! Cortex-M0 build runs the receiver without any floating point. The preamble waveforms are
 //! computed here by `vectors_gen::sync::write_preamble_f32` (the host's f32 FFT), so the
-//! target never generates them; the host checker calls the same function.
+//! target never generates them; the host checker calls the same function. The noise tracker's
+//! constants (`NoiseTrackDesignQ15::new`, f64) are written the same way
+//! (`$OUT_DIR/track_designs.rs`).
 
 use std::fmt::Write as _;
 use std::{env, fs, path::PathBuf};
@@ -15,6 +17,7 @@ use flatbin::estimate::TimeFilter;
 use flatbin::fft::OfdmFft;
 use flatbin::fft_q15::Q15Fft;
 use flatbin::fixed_math::Scaled;
+use flatbin::noise_track_q15::NoiseTrackDesignQ15;
 use flatbin::receiver_q15::DesignQ15;
 use flatbin::Numerology;
 use vectors_gen::rx::{numerology_params, receiver_config, RX_DESIGNS, RX_K, RX_M};
@@ -51,6 +54,14 @@ fn main() {
     preamble::<256>(&mut src);
     fs::write(out.join("sync_preambles.rs"), src).expect("write sync_preambles.rs");
 
+    let mut src = String::from(
+        "// Written by firmware/build.rs: the noise tracker's constants computed on the host by\n\
+         // NoiseTrackDesignQ15::new for receiver design 0 of vectors_gen::rx::RX_DESIGNS.\n",
+    );
+    track_design::<64>(&mut src);
+    track_design::<256>(&mut src);
+    fs::write(out.join("track_designs.rs"), src).expect("write track_designs.rs");
+
     println!("cargo::rerun-if-changed=memory");
     println!("cargo::rerun-if-changed=build.rs");
 }
@@ -84,6 +95,51 @@ fn designs<const N: usize>(src: &mut String) {
         let _ = writeln!(src, "            {i} => Some(&{name}),");
     }
     let _ = writeln!(src, "            _ => None,\n        }}\n    }}\n}}");
+}
+
+/// Appends `TRACK_DESIGN_<N>`, the noise tracker's design at size `N` for the receiver design
+/// `vectors_gen::track::TRACK_RX_DESIGN`, and its `TrackDesigns<N>` implementation.
+fn track_design<const N: usize>(src: &mut String) {
+    let nu = Numerology::new(numerology_params(N)).expect("numerology of the tracking checks");
+    let residual = <Q15Fft<N> as OfdmFft<N>>::RESIDUAL_SCALE;
+    let spec = &RX_DESIGNS[vectors_gen::track::TRACK_RX_DESIGN];
+    let d = Box::new(
+        NoiseTrackDesignQ15::<N>::new::<RX_K, RX_M>(&nu, &receiver_config(spec), residual)
+            .expect("noise tracker design"),
+    );
+    let mut s = String::from("NoiseTrackDesignQ15 {\n");
+    let _ = writeln!(
+        s,
+        "    pilot_coef: {},",
+        list(&d.pilot_coef, |(a, b)| format!("({a}, {b})"))
+    );
+    let _ = writeln!(s, "    pilot_scale: {},", list(&d.pilot_scale, scaled));
+    let _ = writeln!(s, "    inv_pilot_power: {},", scaled(&d.inv_pilot_power));
+    let _ = writeln!(
+        s,
+        "    estimator_mse: {},",
+        list(&d.estimator_mse, |v| v.to_string())
+    );
+    let _ = writeln!(s, "    unit_power: {},", d.unit_power);
+    let _ = writeln!(
+        s,
+        "    dd: {},",
+        list(&d.dd, |t| format!(
+            "DdTableQ15 {{ points: {} }}",
+            list(&t.points, |p| format!(
+                "DdPointQ15 {{ eps_q24: {}, ratio_q16: {}, slope_mant: {}, slope_shift: {} }}",
+                p.eps_q24, p.ratio_q16, p.slope_mant, p.slope_shift
+            ))
+        ))
+    );
+    s.push('}');
+    let _ = writeln!(
+        src,
+        "/// The noise tracker's design at N = {N}.\n\
+         pub static TRACK_DESIGN_{N}: NoiseTrackDesignQ15<{N}> = {s};\n\
+         impl TrackDesigns<{N}> for Tables {{\n    fn track_design() -> \
+         &'static NoiseTrackDesignQ15<{N}> {{\n        &TRACK_DESIGN_{N}\n    }}\n}}"
+    );
 }
 
 /// Appends `PREAMBLE_<N>`, the preamble at size `N`.

@@ -188,6 +188,24 @@ pub mod rx_tables {
     include!(concat!(env!("OUT_DIR"), "/rx_designs.rs"));
 }
 
+/// The noise tracker's designs written by `build.rs` (computed on the host by
+/// `NoiseTrackDesignQ15::new` for receiver design `vectors_gen::track::TRACK_RX_DESIGN`), as
+/// `static` tables: the firmware never designs a tracker itself.
+pub mod track_tables {
+    use flatbin::fixed_math::Scaled;
+    use flatbin::noise_track_q15::{DdPointQ15, DdTableQ15, NoiseTrackDesignQ15};
+
+    pub use super::rx_tables::Tables;
+
+    /// The noise tracker's design at FFT size `N`.
+    pub trait TrackDesigns<const N: usize> {
+        /// The design.
+        fn track_design() -> &'static NoiseTrackDesignQ15<N>;
+    }
+
+    include!(concat!(env!("OUT_DIR"), "/track_designs.rs"));
+}
+
 /// The frame preamble of the synchronisation captures at N = 64 and 256, written by
 /// `build.rs` (computed on the host by `vectors_gen::sync::write_preamble_f32`).
 pub mod sync_tables {

@@ -80,6 +80,21 @@ const HEADER: &str = "\
 #   not the stage object. code_bytes: a firmware with the stage (its Numerology built too)
 #   minus `size_numerology` (`size_baseline` for nco_q15); the frame receiver's includes the
 #   Q15 receiver, its FFT and its design table.
+# Tracking rows (firmware/src/bin/track_cost.rs), one call each on frame case 0 of
+#   vectors_gen::rx (QPSK, -12 dBFS, fixed multipath, 20 dB SNR) received by ReceiverQ15
+#   (K = M = 4, design 0 of the build.rs table), after symbols 0-3 fed every tracker.
+#   Per symbol (the call on symbol 4's bins and block exponent): noise_track_q15_update =
+#   NoiseTrackerQ15::update_from_receiver (design from the build.rs table), doppler_q15_update
+#   = DopplerEstimatorQ15<N, N/4, 32>::update, delay_q15_update =
+#   DelaySpreadEstimatorQ15::update (known floor at N = 64, measured at 256), iq_q15_update =
+#   IqImageEstimatorQ15::update. Per frame (one call after the symbols): set_bin_noise =
+#   ReceiverQ15::set_bin_noise with the tracker's bin_noise (cortex-m0: the noise the design
+#   assumes; it may also run per symbol), noise_track_q15_frame_stats, doppler_q15_estimate,
+#   delay_q15_estimate, iq_q15_estimate, ici_q15_predict = IciTableQ15::predict. The M0 has
+#   only set_bin_noise (n = 64) and ici_q15_predict: the receiver with the trackers exceeds
+#   its 16 KiB of RAM. code_bytes: a firmware with the stage (src/size_track_probe.rs) minus
+#   size_numerology; ici_q15 includes IciTableQ15::new (configuration, f32: soft float on
+#   the M0); set_bin_noise is measured against a firmware that only builds the receiver.
 # Build: opt-level 3, fat LTO, codegen-units 1, panic=abort, Rust toolchain 1.95.0 (pinned);
 #   QEMU 7.2: cortex-m4f = mps2-an386 (-cpu cortex-m4), cortex-m0 = microbit (-cpu cortex-m0).
 core,stage,n,instructions,stack_bytes,code_bytes";

@@ -10,11 +10,13 @@
 //!    code run on the host, and prints the Q15 FFT's SQNR against an f64 reference; runs
 //!    `rx_vectors` (the Q15 receiver on deterministic frames) and `sync_vectors` (the integer
 //!    synchronisation stages and the streaming frame receiver on deterministic captures) and
-//!    compares their outputs bit for bit with the same code run on the host;
-//! 4. links `panic_free` (and `q15_only`), whose panic handler calls an undefined function:
+//!    `track_vectors` (the integer tracking stages on the receiver's frames) and compares
+//!    their outputs bit for bit with the same code run on the host;
+//! 4. links `panic_free` and `track_panic_free` (and `q15_only`), whose panic handler calls an undefined function:
 //!    a surviving panic path fails the link; checks that the M0 Q15 FFT build links no soft
 //!    float and that no soft float is reachable from the Q15 receiver's per-symbol code
-//!    (`rx_q15_only`) nor from the integer synchronisation stages (`sync_q15_only`).
+//!    (`rx_q15_only`), from the integer synchronisation stages (`sync_q15_only`) nor from the
+//!    integer tracking stages' per-symbol and per-frame code (`track_q15_only`).
 //!
 //! See `firmware/README.md`.
 
@@ -28,6 +30,8 @@ mod rx_vectors;
 #[cfg(feature = "q15")]
 mod sync_vectors;
 mod tools;
+#[cfg(feature = "q15")]
+mod track_vectors;
 mod vectors;
 
 use std::path::{Path, PathBuf};
@@ -58,6 +62,13 @@ pub struct Core {
     pub sync_cp_sizes: &'static [usize],
     /// Of those, the sizes the frame receiver runs at (`FrameReceiverQ15` must fit).
     pub sync_frame_sizes: &'static [usize],
+    /// FFT sizes of the receiver-fed tracking stages (the receiver and the trackers must fit
+    /// together: noise tracker, Doppler, delay-spread and I/Q estimators).
+    pub track_sizes: &'static [usize],
+    /// FFT sizes of `set_bin_noise` (the receiver alone must fit).
+    pub track_bin_noise_sizes: &'static [usize],
+    /// FFT sizes of `ici_q15_predict` (a 520-byte table).
+    pub track_ici_sizes: &'static [usize],
 }
 
 /// The cores, in table order. Sizes follow the boards' RAM (16 KiB on the microbit).
@@ -71,6 +82,9 @@ pub const CORES: [Core; 2] = [
         sync_sizes: &[64, 256],
         sync_cp_sizes: &[64, 256],
         sync_frame_sizes: &[64, 256],
+        track_sizes: &[64, 256],
+        track_bin_noise_sizes: &[64, 256],
+        track_ici_sizes: &[64, 256],
     },
     Core {
         name: "cortex-m0",
@@ -85,6 +99,12 @@ pub const CORES: [Core; 2] = [
         // FrameReceiverQ15<64, 4, 4, 512> alone is about 14 KB, and its push needs several KB
         // of stack: it does not fit 16 KiB at any size (see firmware/src/bin/sync_vectors.rs).
         sync_frame_sizes: &[],
+        // ReceiverQ15<64> (6,144 B) with NoiseTrackerQ15<64> (9,272 B), or with the Doppler,
+        // delay and I/Q estimators (4,496 B) and the ~6 KB of stack ReceiverQ15::new takes,
+        // exceeds 16 KiB: no receiver-fed tracker on the M0 (firmware/src/bin/track_cost.rs).
+        track_sizes: &[],
+        track_bin_noise_sizes: &[64],
+        track_ici_sizes: &[64, 256],
     },
 ];
 
@@ -134,6 +154,48 @@ pub fn sync_stages(core: &Core) -> Vec<(&'static str, &'static [usize])> {
     ]
 }
 
+/// Integer tracking stages (`firmware/src/bin/track_cost.rs`), in table order, with the sizes
+/// `core` measures them at: per symbol, then per frame (one call each).
+pub fn track_stages(core: &Core) -> Vec<(&'static str, &'static [usize])> {
+    if !Q15 {
+        return Vec::new();
+    }
+    vec![
+        ("noise_track_q15_update", core.track_sizes),
+        ("doppler_q15_update", core.track_sizes),
+        ("delay_q15_update", core.track_sizes),
+        ("iq_q15_update", core.track_sizes),
+        ("set_bin_noise", core.track_bin_noise_sizes),
+        ("noise_track_q15_frame_stats", core.track_sizes),
+        ("doppler_q15_estimate", core.track_sizes),
+        ("delay_q15_estimate", core.track_sizes),
+        ("iq_q15_estimate", core.track_sizes),
+        ("ici_q15_predict", core.track_ici_sizes),
+    ]
+}
+
+/// The size probe of a tracking stage at `n` and the probe it is measured against
+/// (`firmware/src/size_track_probe.rs`).
+fn track_size_probes(stage: &str, n: usize) -> Option<(String, String)> {
+    let family = [
+        ("noise_track_q15_", "noise"),
+        ("doppler_q15_", "doppler"),
+        ("delay_q15_", "delay"),
+        ("iq_q15_", "iq"),
+        ("ici_q15_", "ici"),
+        ("set_bin_noise", "binnoise"),
+    ]
+    .into_iter()
+    .find(|(p, _)| stage.starts_with(p))?
+    .1;
+    let base = if family == "binnoise" {
+        format!("size_track_rxnew_{n}")
+    } else {
+        "size_numerology".to_string()
+    };
+    Some((format!("size_track_{family}_{n}"), base))
+}
+
 /// Every measured (stage, sizes) of `core`, in table order.
 fn expected_stages(core: &Core) -> Vec<(&'static str, &'static [usize])> {
     stages()
@@ -141,6 +203,7 @@ fn expected_stages(core: &Core) -> Vec<(&'static str, &'static [usize])> {
         .map(|s| (s, core.cost_sizes))
         .chain(rx_stages().into_iter().map(|s| (s, core.rx_sizes)))
         .chain(sync_stages(core))
+        .chain(track_stages(core))
         .collect()
 }
 
@@ -239,6 +302,20 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
             }
             bins.push("sync_cost".into());
             bins.push("sync_q15_only".into());
+            bins.push("track_cost".into());
+            bins.push("track_q15_only".into());
+            bins.push("track_vectors".into());
+            for (stage, sizes) in track_stages(core) {
+                for &n in sizes {
+                    if let Some((probe, base)) = track_size_probes(stage, n) {
+                        for b in [probe, base] {
+                            if !bins.contains(&b) {
+                                bins.push(b);
+                            }
+                        }
+                    }
+                }
+            }
             for (stage, sizes) in sync_stages(core) {
                 for &n in sizes {
                     if let Some((probe, _)) = sync_size_probes(stage, n) {
@@ -258,6 +335,7 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
             check_no_soft_float(&elf("q15_only"), failures)?;
             reach::check_rx_no_soft_float(&elf("rx_q15_only"), failures)?;
             reach::check_sync_no_soft_float(&elf("sync_q15_only"), failures)?;
+            reach::check_track_no_soft_float(&elf("track_q15_only"), failures)?;
         }
 
         section(&format!("{}: instruction counts", core.name));
@@ -265,6 +343,7 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
         if Q15 {
             runs.extend(run_cost(core, &elf("rx_cost"), failures)?);
             runs.extend(run_cost(core, &elf("sync_cost"), failures)?);
+            runs.extend(run_cost(core, &elf("track_cost"), failures)?);
         }
         check_all_measured(core, &runs, failures);
         // Table order: the stages as listed, then N.
@@ -282,6 +361,8 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
         for (stage, n, instructions, stack_bytes) in runs {
             let code = if let Some((probe, base)) = sync_size_probes(&stage, n) {
                 code_bytes(&elf(&probe))?.saturating_sub(code_bytes(&elf(base))?)
+            } else if let Some((probe, base)) = track_size_probes(&stage, n) {
+                code_bytes(&elf(&probe))?.saturating_sub(code_bytes(&elf(&base))?)
             } else if stage.starts_with("rx_q15_") {
                 // The receiver probe against one that builds only its Numerology; without
                 // the FFT's own code for the `est_eq_demap` stages.
@@ -322,6 +403,11 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
                 core.name
             ));
             sync_vectors::check(core, &elf("sync_vectors"), failures)?;
+            section(&format!(
+                "{}: tracking stages, bit-exact against the host",
+                core.name
+            ));
+            track_vectors::check(core, &elf("track_vectors"), failures)?;
         }
     }
 

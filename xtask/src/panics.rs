@@ -12,32 +12,48 @@ use crate::Core;
 
 const MARKER: &str = "flatbin_panic_path_reachable";
 
-/// Builds `panic_free` for `core`; a link failure on the marker is a failed check.
+/// The panic-free binaries: `panic_free` (the core's entry points) and `track_panic_free`
+/// (the integer tracking stages, apart for the Cortex-M0's flash).
+const BINS: [&str; 2] = ["panic_free", "track_panic_free"];
+
+/// Builds each of [`BINS`] for `core`; a link failure on the marker is a failed check.
 pub fn check_panic_free(
     firmware: &Path,
     core: &Core,
     failures: &mut Failures,
 ) -> Result<(), String> {
-    let bins = ["panic_free".to_string()];
+    for bin in BINS {
+        check_one(firmware, core, bin, failures)?;
+    }
+    Ok(())
+}
+
+fn check_one(
+    firmware: &Path,
+    core: &Core,
+    bin: &str,
+    failures: &mut Failures,
+) -> Result<(), String> {
+    let bins = [bin.to_string()];
     let out = run(&mut firmware_cargo(firmware, core.triple, &bins, &[]))?;
     if out.status == Some(0) {
         println!(
-            "panic_free links for {}: no panic path survives in the core's entry points",
+            "{bin} links for {}: no panic path survives in the core's entry points",
             core.name
         );
         return Ok(());
     }
     if !out.stderr.contains(MARKER) {
         return Err(format!(
-            "{}: panic_free failed to build for another reason:\n{}",
+            "{}: {bin} failed to build for another reason:\n{}",
             core.name, out.stderr
         ));
     }
     let mut message = format!(
-        "{}: a panic path survives in the core (panic_free's link fails: undefined symbol `{MARKER}`)",
+        "{}: a panic path survives in the core ({bin}'s link fails: undefined symbol `{MARKER}`)",
         core.name
     );
-    match locate(firmware, core) {
+    match locate(firmware, core, bin) {
         Ok(sites) if !sites.is_empty() => {
             message.push_str("; the panicking checks, in the core:");
             for s in sites {
@@ -78,9 +94,9 @@ pub(crate) fn objdump() -> Option<String> {
 }
 
 /// Builds the diagnostic variant and returns one line per distinct panic call site.
-fn locate(firmware: &Path, core: &Core) -> Result<Vec<String>, String> {
+fn locate(firmware: &Path, core: &Core, bin: &str) -> Result<Vec<String>, String> {
     let tool = objdump().ok_or("no llvm-objdump or arm-none-eabi-objdump on PATH")?;
-    let bins = ["panic_free".to_string()];
+    let bins = [bin.to_string()];
     let out = run(&mut firmware_cargo(
         firmware,
         core.triple,
@@ -90,7 +106,7 @@ fn locate(firmware: &Path, core: &Core) -> Result<Vec<String>, String> {
     if out.status != Some(0) {
         return Err(format!("diagnostic build failed:\n{}", out.stderr));
     }
-    let elf = elf_path(firmware, core.triple, "panic_free");
+    let elf = elf_path(firmware, core.triple, bin);
     // The panic entry points: core's panicking functions and the handler itself.
     let targets: Vec<u64> = nm_symbols(&elf)?
         .into_iter()

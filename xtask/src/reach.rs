@@ -94,7 +94,7 @@ fn operands(i: &Insn) -> Vec<&str> {
 /// when no table is recognised there (the jump then fails the check). Two forms, both sound
 /// whatever the table's length (the index bound before the jump is not parsed):
 /// - `mov pc, rX` after a load from a table of absolute `.word` entries starting within 8
-///   bytes after the jump: the entries are the run of words that are Thumb code addresses
+///   bytes after the jump, or at the address an `adr` before the load gives: the entries are the run of words that are Thumb code addresses
 ///   (bit 0 set) inside a known function, ending at the first word that is not (the table's
 ///   literal pool follows it); every entry is followed. Data words that happen to look like
 ///   code addresses are followed too (conservative).
@@ -115,10 +115,15 @@ fn jump_table_targets(
     }
     match op {
         "mov" => {
-            let first = words.partition_point(|&(a, _)| a <= i.addr);
-            let mut next = match words.get(first) {
-                Some(&(a, _)) if a <= i.addr + 8 => a,
-                _ => return None,
+            let (first, mut next) = if let Some(base) = adr_table_base(insns, k) {
+                let first = words.partition_point(|&(a, _)| a < base);
+                (first, base)
+            } else {
+                let first = words.partition_point(|&(a, _)| a <= i.addr);
+                match words.get(first) {
+                    Some(&(a, _)) if a <= i.addr + 8 => (first, a),
+                    _ => return None,
+                }
             };
             let mut targets = Vec::new();
             for &(a, v) in words.get(first..).unwrap_or_default() {
@@ -158,6 +163,31 @@ fn jump_table_targets(
         }
         _ => None,
     }
+}
+
+/// The table address of `mov pc, rY` (`insns[k]`) when, within the 6 instructions before it,
+/// `rY` is loaded by `ldr rY, [rA, rB]` from a base `rA` set by `adr rA, #imm` (the table
+/// then need not follow the jump: a literal pool may sit between them).
+fn adr_table_base(insns: &[Insn], k: usize) -> Option<u64> {
+    let jump = insns.get(k)?;
+    let target = *operands(jump).get(1)?;
+    let window = insns.get(k.saturating_sub(6)..k)?;
+    let (li, load) = window.iter().enumerate().rev().find(|(_, l)| {
+        let o = operands(l);
+        l.op == "ldr" && o.first() == Some(&target) && o.len() == 3 && o[1].starts_with('[')
+    })?;
+    let base_reg = operands(load).get(1)?.trim_start_matches('[').to_string();
+    let adr = window.get(..li)?.iter().rev().find(|a| {
+        let o = operands(a);
+        a.op == "adr" && o.first() == Some(&base_reg.as_str())
+    })?;
+    let imm = operands(adr)
+        .get(1)?
+        .trim_start_matches('#')
+        .parse::<u64>()
+        .ok()?;
+    // Thumb `adr`: Align(PC, 4) + imm, PC = the instruction's address + 4.
+    Some(((adr.addr + 4) & !3) + imm)
 }
 
 fn functions(elf: &Path) -> Result<Vec<Function>, String> {
@@ -201,6 +231,21 @@ pub fn check_sync_no_soft_float(elf: &Path, failures: &mut Failures) -> Result<(
         "the integer synchronisation code",
         failures,
     )
+}
+
+/// Checks `track_q15_only` (Cortex-M0): no soft float reachable from `per_symbol` or
+/// `per_frame`.
+pub fn check_track_no_soft_float(elf: &Path, failures: &mut Failures) -> Result<(), String> {
+    for entry in ["track_q15_only::per_symbol", "track_q15_only::per_frame"] {
+        check_no_soft_float_from(
+            elf,
+            "track_q15_only (Cortex-M0)",
+            entry,
+            "the integer tracking code",
+            failures,
+        )?;
+    }
+    Ok(())
 }
 
 /// No soft float reachable from the functions whose demangled name contains `entry`.

@@ -156,6 +156,7 @@ fn at_size<const N: usize, const S: usize, const R: usize>(b: &mut Buffers) {
     if !cfg!(core_m0) || N == 64 || N == 256 {
         sync_q15::<N, S, R>(&nu, b);
     }
+    // The tracking stages are in track_panic_free.rs (they do not fit the M0's flash here).
 }
 
 /// A design the optimiser cannot see into (any values: the receiver must not panic for any).

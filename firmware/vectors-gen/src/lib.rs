@@ -16,6 +16,7 @@
 
 pub mod rx;
 pub mod sync;
+pub mod track;
 
 /// Q15 full scale in LSB: a Q15 fraction `v` is `v / FULL_SCALE`.
 pub const FULL_SCALE: f64 = 32768.0;

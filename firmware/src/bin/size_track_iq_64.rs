@@ -1,0 +1,6 @@
+//! Size probe `size_track_iq_64`: see `src/size_track_probe.rs`.
+
+#![no_std]
+#![no_main]
+
+include!("../size_track_probe.rs");
