@@ -299,6 +299,7 @@ impl<const N: usize> NoiseTracker<N> {
         // Pilots and data.
         let mut prbs = Prbs15::for_symbol(nu.params().pilots.seed, symbol);
         let mut count = 0usize;
+        let mut is_data = [false; N];
         for b in nu.bins(symbol) {
             let y = bins.get(b.fft_index).copied().unwrap_or_default();
             let hk = h.get(b.used_index).copied().unwrap_or_default() * rot;
@@ -325,11 +326,14 @@ impl<const N: usize> NoiseTracker<N> {
                     self.dd_ref += xd.norm_sqr();
                     self.data_power += y.norm_sqr();
                     self.data_n += 1;
-                    if let (Some(de), Some(dh)) =
-                        (dd_obs.get_mut(b.fft_index), h_obs.get_mut(b.fft_index))
-                    {
+                    if let (Some(de), Some(dh), Some(d)) = (
+                        dd_obs.get_mut(b.fft_index),
+                        h_obs.get_mut(b.fft_index),
+                        is_data.get_mut(b.fft_index),
+                    ) {
                         *de = (xe - xd).norm_sqr();
                         *dh = hk.norm_sqr();
+                        *d = true;
                     }
                     0.0
                 }
@@ -343,12 +347,6 @@ impl<const N: usize> NoiseTracker<N> {
         let lambda = self.config.lambda;
         let used_index = self.used_index;
         let dd = &self.dd;
-        let mut is_data = [false; N];
-        for b in nu.bins(symbol).filter(|b| b.kind == BinKind::Data) {
-            if let Some(d) = is_data.get_mut(b.fft_index) {
-                *d = true;
-            }
-        }
         for k in 0..N {
             let (Some(o), Some(&kn), Some(&dt), Some(v), Some(s), Some(fs), Some(fnn)) = (
                 obs.get(k),
@@ -558,8 +556,9 @@ fn db(x: f32) -> f32 {
     }
 }
 
-/// Median by insertion sort (the slice is reordered); 0 for an empty slice.
-fn median(v: &mut [f32]) -> f32 {
+/// Sorts a short slice in place, ascending (insertion sort: no allocation, no recursion;
+/// shared with the integer tracker).
+pub(crate) fn sort_small<T: Copy + PartialOrd>(v: &mut [T]) {
     for i in 1..v.len() {
         let mut j = i;
         while j > 0 {
@@ -573,6 +572,11 @@ fn median(v: &mut [f32]) -> f32 {
             j -= 1;
         }
     }
+}
+
+/// Median by insertion sort (the slice is reordered); 0 for an empty slice.
+fn median(v: &mut [f32]) -> f32 {
+    sort_small(v);
     let n = v.len();
     if n == 0 {
         return 0.0;

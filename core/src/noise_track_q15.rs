@@ -1126,19 +1126,7 @@ fn pooled_n0(null: (u64, u64), pilot: (u64, u64)) -> u64 {
 /// Median by insertion sort (the slice is reordered); the mean of the middle two (rounded)
 /// for an even count; 0 for an empty slice.
 fn median(v: &mut [u64]) -> u64 {
-    for i in 1..v.len() {
-        let mut j = i;
-        while j > 0 {
-            let (Some(&a), Some(&b)) = (v.get(j - 1), v.get(j)) else {
-                break;
-            };
-            if a <= b {
-                break;
-            }
-            v.swap(j - 1, j);
-            j -= 1;
-        }
-    }
+    crate::noise_track::sort_small(v);
     let n = v.len();
     if n == 0 {
         return 0;
