@@ -78,9 +78,11 @@
 
 pub mod acquire;
 pub mod acquire_q15;
+pub mod conv_code;
 pub mod correlation;
 pub mod cp_sync;
 pub mod cp_sync_q15;
+pub mod crc;
 pub mod dd_bias;
 pub mod delay_spread;
 pub mod delay_spread_q15;
@@ -100,6 +102,7 @@ pub mod front;
 pub mod gain_dc;
 pub mod ici;
 pub mod ici_q15;
+pub mod interleave;
 pub mod iq_image;
 pub mod iq_image_q15;
 pub mod linalg;
@@ -119,6 +122,7 @@ pub mod sco_q15;
 pub mod sync_q15;
 pub mod transmit;
 pub mod transmit_q15;
+pub mod viterbi;
 
 pub use error::{ConfigError, ProcessError};
 pub use modulation::Modulation;

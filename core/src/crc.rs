@@ -1,0 +1,1 @@
+//! CRC-16 and CRC-32 frame checks. (Being written.)

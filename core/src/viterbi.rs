@@ -1,0 +1,2 @@
+//! Soft-decision Viterbi decoder of [`crate::conv_code`] on i8 LLRs, with a sliding-window
+//! traceback of fixed depth. (Being written.)
