@@ -5,6 +5,7 @@
 
 pub mod channel;
 pub mod characterise;
+pub mod coding_ref;
 pub mod estimator_model;
 pub mod evaluate;
 pub mod evaluate_fading;

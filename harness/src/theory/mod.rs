@@ -3,6 +3,9 @@
 //! * [`ber`]: bit and symbol error rates of Gray-mapped BPSK, QPSK and square M-QAM over AWGN and
 //!   flat Rayleigh fading (Cho & Yoon 2002; Proakis & Salehi 2008; Simon & Alouini 2005), plus
 //!   dB helpers and the Eb/N0 needed for a target BER.
+//! * [`conv_code`]: distance spectrum of the K = 7 (133, 171) convolutional code and its
+//!   punctured rates by a trellis search, and the soft/hard union bounds on its bit error rate
+//!   (Viterbi 1971; Proakis & Salehi 2008; Yasuda, Kashiki & Hirata 1984).
 //! * [`ici`]: Doppler ICI for the classical spectrum (Russell & Stüber 1995; Li & Cimini 2001)
 //!   and CFO leakage, ICI, SIR and SNR loss (Moose 1994; Pollet et al. 1995; Shu et al. 2006).
 //! * [`fading`]: Clarke/Jakes fading statistics: ACF, Doppler PSD, envelope CDF, level-crossing
@@ -19,6 +22,7 @@
 //!   2005).
 
 pub mod ber;
+pub mod conv_code;
 pub mod estimation;
 pub mod fading;
 pub mod freq_corr;
