@@ -519,34 +519,40 @@ fn ber_at<const D: usize>(
 #[test]
 fn recommended_depth_is_deep_enough() {
     // Common practice: a traceback of about 5·K steps suffices at rate 1/2, punctured codes
-    // need longer. Measured here: at an Eb/N0 where the BER is near 1e-4 for each rate,
-    // deeper windows than RECOMMENDED_DEPTH do not change the error count beyond the
-    // Monte Carlo tolerance (4·sqrt(e)).
+    // need longer. Measured here at an Eb/N0 per rate where the BER is 1e-4 … 4e-4: a window
+    // deeper than RECOMMENDED_DEPTH (96) changes the error count by less than the Monte Carlo
+    // tolerance 4·sqrt(e) and alters (almost) no decoded bit; a 32-step window (≈ 5·K) loses
+    // clearly at the punctured rates.
+    assert_eq!(RECOMMENDED_DEPTH, 96);
     for (rate, ebn0) in [
-        (CodeRate::Half, 4.0),
-        (CodeRate::TwoThirds, 5.0),
-        (CodeRate::ThreeQuarters, 5.5),
+        (CodeRate::Half, 3.0),
+        (CodeRate::TwoThirds, 3.5),
+        (CodeRate::ThreeQuarters, 4.0),
     ] {
-        let (frames, len) = (100, 2000);
+        let (frames, len) = (200, 2000);
         let (e32, _) = ber_at::<32>(rate, ebn0, frames, len);
-        let (e64, b64) = ber_at::<RECOMMENDED_DEPTH>(rate, ebn0, frames, len);
+        let (e64, b64) = ber_at::<64>(rate, ebn0, frames, len);
         let (e96, b96) = ber_at::<96>(rate, ebn0, frames, len);
-        let (e128, b128) = ber_at::<128>(rate, ebn0, frames, len);
+        let (e160, b160) = ber_at::<160>(rate, ebn0, frames, len);
         let n = frames * len;
+        let (d64, d96) = (errors(&b64, &b160), errors(&b96, &b160));
         eprintln!(
             "{rate:?} Eb/N0 {ebn0} dB, {n} bits: errors D=32 {e32}, D=64 {e64}, D=96 {e96}, \
-             D=128 {e128}; bits differing 64 vs 96: {}, 64 vs 128: {}",
-            errors(&b64, &b96),
-            errors(&b64, &b128)
+             D=160 {e160} (BER {:.2e}); bits differing from D=160: D=64 {d64}, D=96 {d96}",
+            e160 as f64 / n as f64
         );
-        let tol = 4.0 * (e128.max(1) as f64).sqrt();
+        assert!(e160 >= 100, "{rate:?}: too few errors ({e160}) to measure");
+        let tol = 4.0 * (e160 as f64).sqrt();
         assert!(
-            (e64 as f64 - e128 as f64).abs() <= tol,
-            "{rate:?}: {e64} vs {e128}"
+            (e96 as f64 - e160 as f64).abs() <= tol,
+            "{rate:?}: {e96} vs {e160}"
         );
-        assert!(
-            (e96 as f64 - e128 as f64).abs() <= tol,
-            "{rate:?}: {e96} vs {e128}"
-        );
+        assert!(d96 * 100 <= e160, "{rate:?}: {d96} bits differ");
+        if rate != CodeRate::Half {
+            assert!(
+                e32 as f64 > e160 as f64 + tol,
+                "{rate:?}: D=32 {e32} vs {e160}"
+            );
+        }
     }
 }
