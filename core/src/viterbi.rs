@@ -356,42 +356,52 @@ fn best_state(m: &[i32; STATES]) -> usize {
 
 /// Add-compare-select of one step: from `old` metrics and the pair `(la, lb)` to `new`
 /// metrics (renormalised by `old[0]`); returns the decision word.
+///
+/// The 32 butterflies are written out by a macro with the output pair of each butterfly a
+/// compile-time constant, so the loop has no table look-ups, no bounds checks and no
+/// variable shifts; the four branch values stay in registers.
 #[inline(always)]
 fn acs(old: &[i32; STATES], new: &mut [i32; STATES], la: i8, lb: i8) -> u64 {
     let la = i32::from(la);
     let lb = i32::from(lb);
     let [c, ..] = *old;
-    // Branch metric minus the renormalisation, per output pair (A << 1) | B; index 3 - p is
-    // the complement pair, whose metric is the negation.
-    let t = [
-        (la + lb).wrapping_sub(c),
-        (la - lb).wrapping_sub(c),
-        (lb - la).wrapping_sub(c),
-        (-la - lb).wrapping_sub(c),
-    ];
-    let (pairs, _) = old.as_chunks::<2>();
-    let (lo, hi) = new.split_at_mut(STATES / 2);
+    // Branch metric minus the renormalisation, per output pair (A << 1) | B; pair 3 - p is
+    // the complement of pair p, whose metric is the negation.
+    let t0 = (la + lb).wrapping_sub(c);
+    let t1 = (la - lb).wrapping_sub(c);
+    let t2 = (lb - la).wrapping_sub(c);
+    let t3 = (-la - lb).wrapping_sub(c);
     let mut dec_lo: u32 = 0;
     let mut dec_hi: u32 = 0;
-    for (k, (((&[p0, p1], n0), n1), &p)) in pairs
-        .iter()
-        .zip(lo.iter_mut())
-        .zip(hi.iter_mut())
-        .zip(BUTTERFLY_OUTPUT.iter())
-        .enumerate()
-    {
-        let tp = t.get(usize::from(p & 3)).copied().unwrap_or(0);
-        let tq = t.get(usize::from(3 - (p & 3))).copied().unwrap_or(0);
-        let a0 = p0.wrapping_add(tp);
-        let b0 = p1.wrapping_add(tq);
-        let a1 = p0.wrapping_add(tq);
-        let b1 = p1.wrapping_add(tp);
-        let d0 = b0 > a0;
-        let d1 = b1 > a1;
-        *n0 = if d0 { b0 } else { a0 };
-        *n1 = if d1 { b1 } else { a1 };
-        dec_lo |= u32::from(d0) << k;
-        dec_hi |= u32::from(d1) << k;
+    macro_rules! butterfly {
+        ($($k:literal)*) => {$({
+            const P: u8 = BUTTERFLY_OUTPUT[$k];
+            let (tp, tq) = match P {
+                0 => (t0, t3),
+                1 => (t1, t2),
+                2 => (t2, t1),
+                _ => (t3, t0),
+            };
+            let p0 = old[2 * $k];
+            let p1 = old[2 * $k + 1];
+            let a0 = p0.wrapping_add(tp);
+            let b0 = p1.wrapping_add(tq);
+            let a1 = p0.wrapping_add(tq);
+            let b1 = p1.wrapping_add(tp);
+            if b0 > a0 {
+                new[$k] = b0;
+                dec_lo |= 1 << $k;
+            } else {
+                new[$k] = a0;
+            }
+            if b1 > a1 {
+                new[$k + 32] = b1;
+                dec_hi |= 1 << $k;
+            } else {
+                new[$k + 32] = a1;
+            }
+        })*};
     }
+    butterfly!(0 1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16 17 18 19 20 21 22 23 24 25 26 27 28 29 30 31);
     (u64::from(dec_hi) << 32) | u64::from(dec_lo)
 }
