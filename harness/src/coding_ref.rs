@@ -59,6 +59,7 @@ pub fn decode(llrs: &[f64], info_bits: usize, pattern: PuncturePattern) -> Optio
     // Survivor: the predecessor's dropped (oldest) bit per state and step.
     let mut from = vec![0u8; steps * states];
     let mut pos = 0usize;
+    let mut next = vec![f64::NEG_INFINITY; states];
     for t in 0..steps {
         let keep = pattern[t % pattern.len()];
         let la = if keep.0 {
@@ -73,7 +74,7 @@ pub fn decode(llrs: &[f64], info_bits: usize, pattern: PuncturePattern) -> Optio
         } else {
             0.0
         };
-        let mut next = vec![f64::NEG_INFINITY; states];
+        next.fill(f64::NEG_INFINITY);
         for (s, &m) in metric.iter().enumerate() {
             if m == f64::NEG_INFINITY {
                 continue;
@@ -102,7 +103,7 @@ pub fn decode(llrs: &[f64], info_bits: usize, pattern: PuncturePattern) -> Optio
                 }
             }
         }
-        metric = next;
+        std::mem::swap(&mut metric, &mut next);
     }
     // Trace back from state 0: the input of step t is the newest bit of the state after it.
     let mut bits = vec![0u8; steps];

@@ -5,6 +5,8 @@
 
 pub mod channel;
 pub mod characterise;
+pub mod coded_link;
+pub mod coded_ofdm;
 pub mod coding_ref;
 pub mod estimator_model;
 pub mod evaluate;

@@ -1,0 +1,320 @@
+//! Packets over the OFDM link: CRC, convolutional code, per-symbol interleaver, the f32
+//! receiver with i8 LLRs, de-interleaver, Viterbi decoder, CRC check — measured by packet
+//! error rate (PER) on a scenario's channel and impairments.
+//!
+//! One packet: `payload_bytes` random bytes, CRC-32 (ISO-HDLC, [`flatbin::crc`]) appended,
+//! encoded at the code rate with 6 tail bits, spread over as many OFDM symbols as it needs;
+//! the last symbol is filled up with random bits the receiver ignores. Each packet is one
+//! frame for the receiver (its channel estimator starts over; symbol numbering, and so the
+//! pilot pattern, restart at 0). The channel runs on continuously from packet to packet
+//! (time-continuous Rayleigh fading, sum of sinusoids with a Jakes spectrum) and the noise
+//! tracker carries its per-bin statistics over packets, as in a receiver that stays on.
+//!
+//! Assumptions: ideal timing and no CFO correction (synchronisation is measured elsewhere),
+//! Es/N0 per data subcarrier as given, the scenario's impairments applied by the receive
+//! chain, LLRs quantised to i8 as the firmware receives them (round(4·L), ±127).
+
+use anyhow::{ensure, Result};
+use flatbin::conv_code::{coded_len, encode, CodeRate};
+use flatbin::crc::{append_crc32_bits, check_crc32_bits, CRC32_BITS};
+use flatbin::fft::MicroFft;
+use flatbin::interleave::Interleaver;
+use flatbin::noise_track::{NoiseTrackConfig, NoiseTracker};
+use flatbin::receiver::Receiver;
+use flatbin::transmit::Transmitter;
+use flatbin::viterbi::{Decision, ViterbiDecoder, RECOMMENDED_DEPTH};
+use flatbin::{Cf32, Modulation, Numerology};
+use rand::RngExt;
+use serde::Serialize;
+
+use crate::channel::profile::{DelayProfile, Quantisation};
+use crate::channel::sos::FadingParams;
+use crate::channel::tdl::{Tdl, Variation};
+use crate::coded_link::quantise_llr;
+use crate::evaluate_fading::receiver_config;
+use crate::fading_link::{RX_HISTORY, RX_TAPS};
+use crate::noise::n0_for_es_n0_db;
+use crate::rng::stream_rng;
+use crate::rx_chain::RxChain;
+use crate::scenario::{ChannelProfile, Scenario};
+
+/// Payload of a packet when nothing else is said, bytes (before the 4-byte CRC).
+pub const DEFAULT_PAYLOAD_BYTES: usize = 32;
+
+/// How the receiver weights its LLRs.
+#[derive(Clone, Copy, Debug, PartialEq, Eq, Serialize)]
+pub enum Weighting {
+    /// One noise variance for every bin: the true thermal N0, known to the receiver.
+    Flat,
+    /// The noise tracker's per-bin noise-plus-interference variance
+    /// ([`flatbin::noise_track::NoiseTracker::bin_noise`]), updated every symbol.
+    Tracked,
+}
+
+/// What one PER run is.
+#[derive(Clone, Copy, Debug, Serialize)]
+pub struct PerSetup {
+    /// Data modulation.
+    #[serde(serialize_with = "ser_modulation")]
+    pub modulation: Modulation,
+    /// Code rate.
+    #[serde(serialize_with = "ser_rate")]
+    pub rate: CodeRate,
+    /// Payload per packet, bytes (a 32-bit CRC is added).
+    pub payload_bytes: usize,
+    /// Es/N0 per data subcarrier, dB.
+    pub es_n0_db: f64,
+    /// LLR weighting.
+    pub weighting: Weighting,
+    /// Stop after this many packet errors …
+    pub min_packet_errors: u64,
+    /// … or this many packets, whichever comes first.
+    pub max_packets: u64,
+}
+
+fn ser_modulation<S: serde::Serializer>(m: &Modulation, s: S) -> Result<S::Ok, S::Error> {
+    s.serialize_str(modulation_label(*m))
+}
+
+fn ser_rate<S: serde::Serializer>(r: &CodeRate, s: S) -> Result<S::Ok, S::Error> {
+    s.serialize_str(rate_label(*r))
+}
+
+/// "BPSK", "QPSK", "16-QAM" …
+pub fn modulation_label(m: Modulation) -> &'static str {
+    match m {
+        Modulation::Bpsk => "BPSK",
+        Modulation::Qpsk => "QPSK",
+        Modulation::Qam16 => "16-QAM",
+        Modulation::Qam64 => "64-QAM",
+        Modulation::Qam256 => "256-QAM",
+    }
+}
+
+/// "1/2", "2/3", "3/4".
+pub fn rate_label(r: CodeRate) -> &'static str {
+    match r {
+        CodeRate::Half => "1/2",
+        CodeRate::TwoThirds => "2/3",
+        CodeRate::ThreeQuarters => "3/4",
+    }
+}
+
+/// The outcome of one PER run.
+#[derive(Clone, Debug, Serialize)]
+pub struct PerPoint {
+    /// What was run.
+    pub setup: PerSetup,
+    /// Packets sent.
+    pub packets: u64,
+    /// Packets whose CRC failed.
+    pub packet_errors: u64,
+    /// Packets whose CRC passed but whose payload differed (undetected errors).
+    pub undetected: u64,
+    /// Information bits (payload + CRC) decoded, and how many were wrong.
+    pub bits: u64,
+    /// Decoded information bits in error.
+    pub bit_errors: u64,
+    /// OFDM symbols per packet.
+    pub symbols_per_packet: u32,
+}
+
+impl PerPoint {
+    /// Packet error rate.
+    pub fn per(&self) -> f64 {
+        if self.packets == 0 {
+            0.0
+        } else {
+            self.packet_errors as f64 / self.packets as f64
+        }
+    }
+
+    /// Standard deviation of [`PerPoint::per`] (binomial).
+    pub fn per_sd(&self) -> f64 {
+        let p = self.per();
+        if self.packets == 0 {
+            0.0
+        } else {
+            (p * (1.0 - p) / self.packets as f64).sqrt()
+        }
+    }
+
+    /// Decoded bit error rate.
+    pub fn ber(&self) -> f64 {
+        if self.bits == 0 {
+            0.0
+        } else {
+            self.bit_errors as f64 / self.bits as f64
+        }
+    }
+}
+
+/// Runs packets of `setup` through the scenario's channel; `stream` keys the random
+/// streams (the same stream and setup give the same channel and noise whatever the
+/// weighting, so weightings compare on common random numbers).
+pub fn packet_error_rate(
+    scenario: &Scenario,
+    numerology: &Numerology,
+    setup: &PerSetup,
+    stream: u64,
+) -> Result<PerPoint> {
+    crate::with_fft_len!(
+        numerology.fft_len(),
+        run(scenario, numerology, setup, stream)
+    )
+}
+
+// Not inlined: see `link_survey::run`.
+#[inline(never)]
+fn run<const N: usize>(
+    scenario: &Scenario,
+    nu: &Numerology,
+    setup: &PerSetup,
+    stream: u64,
+) -> Result<PerPoint> {
+    ensure!(setup.payload_bytes > 0, "payload must be at least one byte");
+    let fs = scenario.band.sample_rate_hz;
+    let ns = nu.symbol_len();
+    let m = setup.modulation;
+    let n0 = n0_for_es_n0_db(setup.es_n0_db);
+    let info_bits = 8 * setup.payload_bytes + CRC32_BITS;
+    let coded = coded_len(info_bits, setup.rate);
+    // Symbols per packet (data bins may differ per symbol under a scattered pattern).
+    let bps = m.bits_per_symbol();
+    let mut symbols = 0u32;
+    let mut capacity = 0usize;
+    while capacity < coded {
+        capacity += nu.data_len(symbols) * bps;
+        symbols += 1;
+        ensure!(symbols < 10_000, "packet does not fit in 10 000 symbols");
+    }
+    let taps = match scenario.channel.profile {
+        ChannelProfile::Awgn => vec![(0usize, 1.0f64)],
+        ChannelProfile::Exponential => {
+            DelayProfile::exponential(scenario.channel.rms_delay_spread_s, fs)?
+                .to_sample_taps(fs, Quantisation::Nearest)
+        }
+    };
+    let mut rng = stream_rng(scenario.seed ^ 0xC0DE_0000, stream);
+    let params = FadingParams::rayleigh(scenario.max_doppler_hz(), fs, N);
+    let mut line = Tdl::new(&taps, &params, Variation::Continuous, &mut rng);
+    let mut chain = RxChain::from_scenario(scenario, stream.wrapping_mul(31).wrapping_add(7));
+    let mut tx = Transmitter::new(*nu, MicroFft::<N>::new())?;
+    let mut rx = Box::new(Receiver::<MicroFft<N>, N, RX_TAPS, RX_HISTORY>::new(
+        nu,
+        MicroFft::new(),
+        receiver_config(scenario, nu, n0),
+    )?);
+    let mut noise = Box::new(NoiseTracker::<N>::new(nu, NoiseTrackConfig::default())?);
+    let mut decoder = Box::new(ViterbiDecoder::<RECOMMENDED_DEPTH>::new(
+        setup.rate,
+        Decision::Soft,
+    ));
+    let interleavers: Vec<Interleaver> = (0..symbols)
+        .map(|s| Interleaver::for_symbol(nu, s, m))
+        .collect::<Result<_, _>>()?;
+    let mut eq = vec![Cf32::default(); N];
+    let mut sinr = vec![0.0f32; N];
+    let mut llr = vec![0.0f32; N * 8];
+    let mut per_bin = vec![0.0f32; N];
+    let mut point = PerPoint {
+        setup: *setup,
+        packets: 0,
+        packet_errors: 0,
+        undetected: 0,
+        bits: 0,
+        bit_errors: 0,
+        symbols_per_packet: symbols,
+    };
+    let mut frame = vec![0u8; info_bits];
+    let mut code = vec![0u8; coded];
+    let mut decoded = vec![0u8; info_bits + 2 * RECOMMENDED_DEPTH + 8];
+    while point.packets < setup.max_packets && point.packet_errors < setup.min_packet_errors {
+        // Transmit.
+        for b in frame.iter_mut().take(8 * setup.payload_bytes) {
+            *b = rng.random::<u8>() & 1;
+        }
+        append_crc32_bits(&mut frame)?;
+        let n = encode(&frame, setup.rate, &mut code)?;
+        ensure!(n == coded, "encoder wrote {n} bits, {coded} expected");
+        let mut x = Vec::with_capacity(ns * symbols as usize);
+        let mut pos = 0usize;
+        for (sym, il) in (0..symbols).zip(&interleavers) {
+            let len = il.coded_bits();
+            let mut bits: Vec<u8> = (0..len)
+                .map(|i| {
+                    code.get(pos + i)
+                        .copied()
+                        .unwrap_or_else(|| rng.random::<u8>() & 1)
+                })
+                .collect();
+            pos += len;
+            let mut out = vec![0u8; len];
+            il.interleave(&bits, &mut out)?;
+            bits = out;
+            let mut s = vec![Cf32::default(); ns];
+            tx.modulate(m, &bits, sym, &mut s)?;
+            x.extend_from_slice(&s);
+        }
+        // Channel and front end.
+        let mut faded = vec![Cf32::default(); x.len()];
+        line.process(&x, &mut faded);
+        let power = faded.iter().map(|v| f64::from(v.norm_sqr())).sum::<f64>() / faded.len() as f64;
+        let r = chain.receive(&faded, power, n0);
+        let g = (1.0 / r.agc_gain) as f32;
+        let samples: Vec<Cf32> = r.samples.iter().map(|v| v * g).collect();
+        // Receive.
+        noise.start_frame(1.0);
+        rx.reset();
+        decoder.reset();
+        let mut written = 0usize;
+        let mut remaining = coded;
+        for (sym, il) in (0..symbols).zip(&interleavers) {
+            let w = &samples[sym as usize * ns..(sym as usize + 1) * ns];
+            if setup.weighting == Weighting::Tracked
+                && (noise.frame_stats().symbols > 0 || point.packets > 0)
+            {
+                let k = noise.bin_noise(&mut per_bin);
+                rx.set_bin_noise(&per_bin[..k])?;
+            }
+            let c = rx.receive(w, sym, m, &mut eq, &mut sinr, &mut llr)?;
+            noise.update(
+                sym,
+                rx.bins(),
+                rx.estimator(),
+                rx.common_phase(),
+                &eq[..c.data_bins],
+                m,
+            )?;
+            let q: Vec<i8> = llr[..c.llrs]
+                .iter()
+                .map(|&l| quantise_llr(f64::from(l)))
+                .collect();
+            let mut d = vec![0i8; q.len()];
+            il.deinterleave(&q, &mut d)?;
+            let take = remaining.min(d.len());
+            remaining -= take;
+            written += decoder.decode(&d[..take], &mut decoded[written..])?;
+        }
+        written += decoder.finish(&mut decoded[written..])?;
+        ensure!(
+            written == info_bits,
+            "decoded {written} bits, {info_bits} expected"
+        );
+        let e = decoded[..info_bits]
+            .iter()
+            .zip(&frame)
+            .filter(|(a, b)| a != b)
+            .count() as u64;
+        let crc_ok = check_crc32_bits(&decoded[..info_bits])?;
+        point.packets += 1;
+        point.bits += info_bits as u64;
+        point.bit_errors += e;
+        if !crc_ok {
+            point.packet_errors += 1;
+        } else if e > 0 {
+            point.undetected += 1;
+        }
+    }
+    Ok(point)
+}
