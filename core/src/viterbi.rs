@@ -41,7 +41,8 @@
 //! ```
 //!
 //! Ties go to the even predecessor. One step stores one 64-bit decision word (bit `s` set if
-//! state `s` came from its odd predecessor). The loop runs over fixed-size arrays with
+//! state `s` came from its odd predecessor), kept as two u32 halves so that traceback needs
+//! no 64-bit shift on 32-bit cores. The loop runs over fixed-size arrays with
 //! iterators: no bounds checks, no division, no floating point.
 //!
 //! ## Traceback and memory
@@ -78,6 +79,10 @@ pub const METRIC_BOUND_LOW: i32 = -(12 * 256 + 256);
 /// Highest value a stored path metric can take: `12·256 + (12·256 + 256)` (spread bound plus the
 /// largest rise of the state-0 metric).
 pub const METRIC_BOUND_HIGH: i32 = 12 * 256 + 12 * 256 + 256;
+
+/// One step's 64 decision bits as two 32-bit halves `[states 0..32, states 32..64]` (no
+/// 64-bit shifts on 32-bit cores).
+type Word = [u32; 2];
 
 /// Initial metric of the states not yet reachable from state 0 (relative to state 0).
 const UNREACHABLE: i32 = -(1 << 20);
@@ -116,7 +121,7 @@ pub struct ViterbiDecoder<const D: usize> {
     metrics: [[i32; STATES]; 2],
     cur: usize,
     /// Decision words, two halves of `D` steps each.
-    ring: [[u64; D]; 2],
+    ring: [[Word; D]; 2],
     /// The half being written.
     half: usize,
     /// Next index in the half being written.
@@ -136,7 +141,7 @@ impl<const D: usize> ViterbiDecoder<D> {
         let mut d = Self {
             metrics: [[0; STATES]; 2],
             cur: 0,
-            ring: [[0; D]; 2],
+            ring: [[[0; 2]; D]; 2],
             half: 0,
             idx: 0,
             older_full: false,
@@ -256,7 +261,7 @@ impl<const D: usize> ViterbiDecoder<D> {
         let older_full = self.older_full;
         let mut state = 0usize;
         let newest = newest.get(..idx).unwrap_or_default();
-        let older: &[u64] = if older_full { older } else { &[] };
+        let older: &[Word] = if older_full { older } else { &[] };
         let mut bits = dst.iter_mut().rev();
         for (i, &w) in newest.iter().rev().chain(older.iter().rev()).enumerate() {
             let bit = (state >> 5) as u8;
@@ -272,7 +277,7 @@ impl<const D: usize> ViterbiDecoder<D> {
     }
 
     /// The half being written and the other half.
-    fn halves(&self) -> (&[u64; D], &[u64; D]) {
+    fn halves(&self) -> (&[Word; D], &[Word; D]) {
         let [h0, h1] = &self.ring;
         if self.half == 0 {
             (h0, h1)
@@ -331,12 +336,9 @@ impl<const D: usize> ViterbiDecoder<D> {
 
 /// The predecessor of `state` on the survivor recorded in decision word `w`.
 #[inline(always)]
-fn prev_state(w: u64, state: usize) -> usize {
-    let half = if state & 32 != 0 {
-        (w >> 32) as u32
-    } else {
-        w as u32
-    };
+fn prev_state(w: Word, state: usize) -> usize {
+    let [lo, hi] = w;
+    let half = if state & 32 != 0 { hi } else { lo };
     let d = ((half >> (state & 31)) & 1) as usize;
     ((state << 1) & 63) | d
 }
@@ -361,7 +363,7 @@ fn best_state(m: &[i32; STATES]) -> usize {
 /// compile-time constant, so the loop has no table look-ups, no bounds checks and no
 /// variable shifts; the four branch values stay in registers.
 #[inline(always)]
-fn acs(old: &[i32; STATES], new: &mut [i32; STATES], la: i8, lb: i8) -> u64 {
+fn acs(old: &[i32; STATES], new: &mut [i32; STATES], la: i8, lb: i8) -> Word {
     let la = i32::from(la);
     let lb = i32::from(lb);
     let [c, ..] = *old;
@@ -403,5 +405,5 @@ fn acs(old: &[i32; STATES], new: &mut [i32; STATES], la: i8, lb: i8) -> u64 {
         })*};
     }
     butterfly!(0 1 2 3 4 5 6 7 8 9 10 11 12 13 14 15 16 17 18 19 20 21 22 23 24 25 26 27 28 29 30 31);
-    (u64::from(dec_hi) << 32) | u64::from(dec_lo)
+    [dec_lo, dec_hi]
 }
