@@ -318,3 +318,89 @@ fn run<const N: usize>(
     }
     Ok(point)
 }
+
+/// The Es/N0 at which the PER falls through a target, found on a grid.
+#[derive(Clone, Debug, Serialize)]
+pub struct PerThreshold {
+    /// Modulation.
+    #[serde(serialize_with = "ser_modulation")]
+    pub modulation: Modulation,
+    /// Code rate.
+    #[serde(serialize_with = "ser_rate")]
+    pub rate: CodeRate,
+    /// Target PER.
+    pub target: f64,
+    /// Es/N0 per data subcarrier where the measured PER crosses the target (log-linear
+    /// between the bracketing grid points), dB; `None` when it does not within the grid.
+    pub es_n0_db: Option<f64>,
+    /// Spread of that figure from the Monte Carlo error of the two bracketing points
+    /// (±1 sd of each PER moved through the interpolation), dB.
+    pub es_n0_sd_db: Option<f64>,
+    /// Every grid point run (ascending Es/N0).
+    pub points: Vec<PerPoint>,
+}
+
+/// Steps Es/N0 from `start_db` by `step_db` (up to `max_db`) until the PER of `base` (its
+/// Es/N0 replaced) falls to `target` or below, and interpolates the crossing.
+pub fn es_n0_for_per(
+    scenario: &Scenario,
+    numerology: &Numerology,
+    base: &PerSetup,
+    target: f64,
+    (start_db, step_db, max_db): (f64, f64, f64),
+    stream: u64,
+) -> Result<PerThreshold> {
+    ensure!(
+        step_db > 0.0 && target > 0.0 && target < 1.0,
+        "invalid search"
+    );
+    let mut points: Vec<PerPoint> = Vec::new();
+    let mut db = start_db;
+    while db <= max_db + 1e-9 {
+        let p = packet_error_rate(
+            scenario,
+            numerology,
+            &PerSetup {
+                es_n0_db: db,
+                ..*base
+            },
+            stream,
+        )?;
+        let done = p.per() <= target;
+        points.push(p);
+        if done {
+            break;
+        }
+        db += step_db;
+    }
+    let xy: Vec<(f64, f64)> = points.iter().map(|p| (p.setup.es_n0_db, p.per())).collect();
+    let es = crate::coded_link::crossing_db(&xy, target);
+    let sd = es.and_then(|x| {
+        let w = points
+            .windows(2)
+            .find(|w| w[0].per() >= target && w[1].per() <= target && w[1].per() > 0.0)?;
+        // Move each end by its sd and see how far the crossing moves.
+        let shift = |a: f64, b: f64| {
+            crate::coded_link::crossing_db(
+                &[(w[0].setup.es_n0_db, a), (w[1].setup.es_n0_db, b)],
+                target,
+            )
+        };
+        let (p0, p1) = (w[0].per(), w[1].per());
+        let hi = shift(p0 + w[0].per_sd(), p1 + w[1].per_sd()).unwrap_or(w[1].setup.es_n0_db);
+        let lo = shift(
+            (p0 - w[0].per_sd()).max(target),
+            (p1 - w[1].per_sd()).max(1e-12),
+        )
+        .unwrap_or(w[0].setup.es_n0_db);
+        Some(0.5 * ((hi - x).abs() + (x - lo).abs()))
+    });
+    Ok(PerThreshold {
+        modulation: base.modulation,
+        rate: base.rate,
+        target,
+        es_n0_db: es,
+        es_n0_sd_db: sd,
+        points,
+    })
+}
