@@ -91,8 +91,14 @@ fn run(cli: Cli) -> Result<ExitCode> {
                 SURVEY_ES_N0_DB,
                 SURVEY_FRAMES,
             )?;
+            let coded = flatbin_harness::coded_ofdm::survey(&scenario, &numerology)?;
             if args.json {
-                let both = serde_json::json!({ "awgn": &report, "fading": &fading, "link_report": &survey });
+                let both = serde_json::json!({
+                    "awgn": &report,
+                    "fading": &fading,
+                    "link_report": &survey,
+                    "coded": &coded,
+                });
                 println!("{}", serde_json::to_string_pretty(&both)?);
             } else {
                 print!("{}", render_text(&report));
@@ -100,6 +106,7 @@ fn run(cli: Cli) -> Result<ExitCode> {
                     print!("{}", flatbin_harness::evaluate_fading::render_text(f));
                 }
                 print!("{}", flatbin_harness::link_survey::render_text(&survey));
+                print!("{}", flatbin_harness::coded_ofdm::render_text(&coded));
             }
             if let Some(dir) = args.plots {
                 let files = write_ber_plots(&scenario, &report, fading.as_ref(), &dir)?;

@@ -37,9 +37,9 @@ pub type PuncturePattern = &'static [(bool, bool)];
 
 /// Rate 1/2: both outputs of every input bit.
 pub const RATE_1_2: PuncturePattern = &[(true, true)];
-/// Rate 2/3: A1 B1 A2 (B2 dropped): IEEE 802.11a-1999 clause 17.3.5.6, figure 115.
+/// Rate 2/3: A1 B1 A2 (B2 dropped): IEEE 802.11a-1999 clause 17.3.5.5.
 pub const RATE_2_3: PuncturePattern = &[(true, true), (true, false)];
-/// Rate 3/4: A1 B1 A2 B3 (B2 and A3 dropped): IEEE 802.11a-1999 clause 17.3.5.6.
+/// Rate 3/4: A1 B1 A2 B3 (B2 and A3 dropped): IEEE 802.11a-1999 clause 17.3.5.5.
 pub const RATE_3_4: PuncturePattern = &[(true, true), (true, false), (false, true)];
 
 /// One term of a distance spectrum.
@@ -292,7 +292,7 @@ mod tests {
     #[test]
     fn punctured_free_distances() {
         // Free distances of the 133/171 code punctured to 2/3 and 3/4 with the patterns of
-        // IEEE 802.11a clause 17.3.5.6: 6 and 5 (common practice; from memory).
+        // IEEE 802.11a clause 17.3.5.5: 6 and 5 (common practice; from memory).
         assert_eq!(
             spectrum(RATE_2_3, 12).and_then(|s| s.free_distance()),
             Some(6)
