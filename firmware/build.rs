@@ -62,6 +62,14 @@ fn main() {
     track_design::<256>(&mut src);
     fs::write(out.join("track_designs.rs"), src).expect("write track_designs.rs");
 
+    let mut src = String::from(
+        "// Written by firmware/build.rs: the receiver outputs the trackers read (FFT bins, channel\n\
+         // estimate, common phase, equalized symbols) of the tracking cases, recorded on the host\n\
+         // by vectors_gen::track::record_case with receiver design 0.\n",
+    );
+    track_stored::<64>(&mut src);
+    fs::write(out.join("track_stored.rs"), src).expect("write track_stored.rs");
+
     println!("cargo::rerun-if-changed=memory");
     println!("cargo::rerun-if-changed=build.rs");
 }
@@ -139,6 +147,103 @@ fn track_design<const N: usize>(src: &mut String) {
          pub static TRACK_DESIGN_{N}: NoiseTrackDesignQ15<{N}> = {s};\n\
          impl TrackDesigns<{N}> for Tables {{\n    fn track_design() -> \
          &'static NoiseTrackDesignQ15<{N}> {{\n        &TRACK_DESIGN_{N}\n    }}\n}}"
+    );
+}
+
+/// Appends the stored receiver outputs at size `N` (`STORED_*_<N>`, one entry per case of
+/// `vectors_gen::track::TRACK_CASES`, frame and symbol, in that order) and their
+/// `TrackStored<N>` implementation.
+fn track_stored<const N: usize>(src: &mut String) {
+    use vectors_gen::rx::RX_SYMBOLS;
+    use vectors_gen::track::{record_case, Buffers, TRACK_CASES, TRACK_FRAMES};
+    let nu = Numerology::new(numerology_params(N)).expect("numerology of the tracking checks");
+    let residual = <Q15Fft<N> as OfdmFft<N>>::RESIDUAL_SCALE;
+    let spec = &RX_DESIGNS[vectors_gen::track::TRACK_RX_DESIGN];
+    let design = Box::new(
+        DesignQ15::<N, RX_K, RX_M>::new(&nu, &receiver_config(spec), residual)
+            .expect("receiver design"),
+    );
+    let mut rx = Box::new(
+        flatbin::receiver_q15::ReceiverQ15::<Q15Fft<N>, N, RX_K, RX_M>::new(
+            &nu,
+            Q15Fft::new(),
+            *design,
+        )
+        .expect("receiver"),
+    );
+    let mut samples = vec![flatbin::fixed::Cq15::ZERO; N + N / 8];
+    let mut equalized = vec![flatbin::fixed::Cq15::ZERO; N];
+    let mut sinr = vec![Scaled::default(); N];
+    let mut llrs = vec![0i8; 4 * N];
+    let mut noise = vec![0u64; N];
+    let mut b = Buffers {
+        samples: &mut samples,
+        equalized: &mut equalized,
+        sinr: &mut sinr,
+        llrs: &mut llrs,
+        noise: &mut noise,
+    };
+    let cq = |c: &flatbin::fixed::Cq15| format!("Cq15 {{ re: {}, im: {} }}", c.re, c.im);
+    let padded = |v: &[flatbin::fixed::Cq15]| {
+        let mut p = v.to_vec();
+        p.resize(N, flatbin::fixed::Cq15::ZERO);
+        list(&p, cq)
+    };
+    let (mut bins, mut bins_exp, mut est, mut est_exp, mut cpe, mut eq, mut eq_len, mut rx_err) = (
+        vec![],
+        vec![],
+        vec![],
+        vec![],
+        vec![],
+        vec![],
+        vec![],
+        vec![],
+    );
+    let mut est_len = 0;
+    for case in TRACK_CASES {
+        let ok = record_case(case, &nu, &mut rx, &mut b, &mut |_, _, s| {
+            bins.push(list(s.bins, cq));
+            bins_exp.push(s.bins_exp.to_string());
+            est_len = s.estimate.len();
+            est.push(padded(s.estimate));
+            est_exp.push(s.estimate_exp.to_string());
+            cpe.push(match s.common_phase {
+                None => "None".to_string(),
+                Some(c) => format!("Some({})", cq(&c)),
+            });
+            eq.push(padded(s.equalized));
+            eq_len.push(s.equalized.len().to_string());
+            rx_err.push(s.rx_error.to_string());
+        });
+        assert!(ok, "recording tracking case {case} at N = {N}");
+    }
+    let count = TRACK_CASES.len() * TRACK_FRAMES as usize * RX_SYMBOLS as usize;
+    assert_eq!(bins.len(), count, "stored symbols at N = {N}");
+    let table = |name: &str, ty: &str, items: &[String]| {
+        format!(
+            "/// Stored receiver outputs at N = {N}: {name}.\npub static STORED_{name}_{N}: [{ty}; {count}] = [{}];\n",
+            items.join(",\n")
+        )
+    };
+    src.push_str(&table("BINS", &format!("[Cq15; {N}]"), &bins));
+    src.push_str(&table("BINS_EXP", "i32", &bins_exp));
+    src.push_str(&table("ESTIMATE", &format!("[Cq15; {N}]"), &est));
+    src.push_str(&table("ESTIMATE_EXP", "i32", &est_exp));
+    src.push_str(&table("COMMON_PHASE", "Option<Cq15>", &cpe));
+    src.push_str(&table("EQUALIZED", &format!("[Cq15; {N}]"), &eq));
+    src.push_str(&table("EQUALIZED_LEN", "u8", &eq_len));
+    src.push_str(&table("RX_ERROR", "bool", &rx_err));
+    let _ = writeln!(
+        src,
+        "impl TrackStored<{N}> for Tables {{\n    const ESTIMATE_LEN: usize = {est_len};\n    \
+         fn stored(index: usize) -> Option<StoredSymbol<'static, {N}>> {{\n        \
+         Some(StoredSymbol {{\n            bins: STORED_BINS_{N}.get(index)?,\n            \
+         bins_exp: *STORED_BINS_EXP_{N}.get(index)?,\n            \
+         estimate: STORED_ESTIMATE_{N}.get(index)?.get(..Self::ESTIMATE_LEN)?,\n            \
+         estimate_exp: *STORED_ESTIMATE_EXP_{N}.get(index)?,\n            \
+         common_phase: *STORED_COMMON_PHASE_{N}.get(index)?,\n            \
+         equalized: STORED_EQUALIZED_{N}.get(index)?.get(..usize::from(*STORED_EQUALIZED_LEN_{N}.get(index)?))?,\n            \
+         rx_error: *STORED_RX_ERROR_{N}.get(index)?,\n        }})\n    }}\n}}"
     );
 }
 

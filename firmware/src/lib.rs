@@ -206,6 +206,47 @@ pub mod track_tables {
     include!(concat!(env!("OUT_DIR"), "/track_designs.rs"));
 }
 
+/// The receiver outputs the trackers read, recorded on the host (`build.rs`, by
+/// `vectors_gen::track::record_case`) for the tracking cases at N = 64 and stored in flash:
+/// a core whose RAM does not hold the receiver beside the trackers feeds them these
+/// (`src/bin/track_stored.rs`, the Cortex-M0 part of `src/bin/track_cost.rs`).
+pub mod track_stored {
+    use flatbin::fixed::Cq15;
+    use vectors_gen::track::StoredSymbol;
+
+    pub use super::rx_tables::Tables;
+
+    /// Stored receiver outputs at FFT size `N`.
+    pub trait TrackStored<const N: usize> {
+        /// Channel estimate values per symbol (the used bins).
+        const ESTIMATE_LEN: usize;
+        /// Entry `index` = (position in `TRACK_CASES` · `TRACK_FRAMES` + frame) ·
+        /// `RX_SYMBOLS` + symbol.
+        fn stored(index: usize) -> Option<StoredSymbol<'static, N>>;
+    }
+
+    include!(concat!(env!("OUT_DIR"), "/track_stored.rs"));
+
+    /// The stored symbol of case position `case_pos` (in `TRACK_CASES`), `frame`, `symbol`.
+    pub fn stored<const N: usize>(
+        case_pos: usize,
+        frame: u32,
+        symbol: u32,
+    ) -> Option<StoredSymbol<'static, N>>
+    where
+        Tables: TrackStored<N>,
+    {
+        use vectors_gen::rx::RX_SYMBOLS;
+        use vectors_gen::track::TRACK_FRAMES;
+        if frame >= TRACK_FRAMES || symbol >= RX_SYMBOLS {
+            return None;
+        }
+        let index = (case_pos * TRACK_FRAMES as usize + frame as usize) * RX_SYMBOLS as usize
+            + symbol as usize;
+        <Tables as TrackStored<N>>::stored(index)
+    }
+}
+
 /// The frame preamble of the synchronisation captures at N = 64 and 256, written by
 /// `build.rs` (computed on the host by `vectors_gen::sync::write_preamble_f32`).
 pub mod sync_tables {

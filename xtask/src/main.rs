@@ -69,6 +69,10 @@ pub struct Core {
     pub track_bin_noise_sizes: &'static [usize],
     /// FFT sizes of `ici_q15_predict` (a 520-byte table).
     pub track_ici_sizes: &'static [usize],
+    /// FFT sizes of the tracking stages fed stored receiver outputs (`track_stored`, and the
+    /// estimators' cost rows where `track_sizes` lacks them): cores whose RAM does not hold
+    /// the receiver beside the trackers.
+    pub track_stored_sizes: &'static [usize],
 }
 
 /// The cores, in table order. Sizes follow the boards' RAM (16 KiB on the microbit).
@@ -85,6 +89,7 @@ pub const CORES: [Core; 2] = [
         track_sizes: &[64, 256],
         track_bin_noise_sizes: &[64, 256],
         track_ici_sizes: &[64, 256],
+        track_stored_sizes: &[],
     },
     Core {
         name: "cortex-m0",
@@ -105,6 +110,9 @@ pub const CORES: [Core; 2] = [
         track_sizes: &[],
         track_bin_noise_sizes: &[64],
         track_ici_sizes: &[64, 256],
+        // The Doppler, delay and I/Q estimators on stored receiver outputs (flash tables);
+        // the noise tracker does not fit (firmware/src/bin/track_stored.rs).
+        track_stored_sizes: &[64],
     },
 ];
 
@@ -160,16 +168,21 @@ pub fn track_stages(core: &Core) -> Vec<(&'static str, &'static [usize])> {
     if !Q15 {
         return Vec::new();
     }
+    let est = if core.track_sizes.is_empty() {
+        core.track_stored_sizes
+    } else {
+        core.track_sizes
+    };
     vec![
         ("noise_track_q15_update", core.track_sizes),
-        ("doppler_q15_update", core.track_sizes),
-        ("delay_q15_update", core.track_sizes),
-        ("iq_q15_update", core.track_sizes),
+        ("doppler_q15_update", est),
+        ("delay_q15_update", est),
+        ("iq_q15_update", est),
         ("set_bin_noise", core.track_bin_noise_sizes),
         ("noise_track_q15_frame_stats", core.track_sizes),
-        ("doppler_q15_estimate", core.track_sizes),
-        ("delay_q15_estimate", core.track_sizes),
-        ("iq_q15_estimate", core.track_sizes),
+        ("doppler_q15_estimate", est),
+        ("delay_q15_estimate", est),
+        ("iq_q15_estimate", est),
         ("ici_q15_predict", core.track_ici_sizes),
     ]
 }
@@ -305,6 +318,9 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
             bins.push("track_cost".into());
             bins.push("track_q15_only".into());
             bins.push("track_vectors".into());
+            if !core.track_stored_sizes.is_empty() {
+                bins.push("track_stored".into());
+            }
             for (stage, sizes) in track_stages(core) {
                 for &n in sizes {
                     if let Some((probe, base)) = track_size_probes(stage, n) {
@@ -408,6 +424,13 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
                 core.name
             ));
             track_vectors::check(core, &elf("track_vectors"), failures)?;
+            if !core.track_stored_sizes.is_empty() {
+                section(&format!(
+                    "{}: tracking stages on stored receiver outputs, bit-exact against the host",
+                    core.name
+                ));
+                track_vectors::check_stored(core, &elf("track_stored"), failures)?;
+            }
         }
     }
 

@@ -19,17 +19,21 @@
 //!   the design assumes where there is no tracker; it runs per frame here but may run per
 //!   symbol).
 //!
-//! On the Cortex-M0 (16 KiB RAM) only N = 64 with the receiver (about 6.4 KB) and the Doppler,
-//! delay and I/Q estimators; the noise tracker (it holds its design: about 9 KB at N = 64) does
-//! not fit beside the receiver, and no receiver at N = 256 fits (about 25 KB). `ici_q15_predict`
-//! needs no receiver: N = 64 and 256 on both cores. The firmware prints `trackskip` lines with
-//! the sizes.
+//! On the Cortex-M0 (16 KiB RAM): `set_bin_noise` at N = 64 with the receiver (6,144 B) and the
+//! noise the design assumes; the Doppler, delay and I/Q rows at N = 64 without the receiver,
+//! on its outputs of the same frame stored in flash (`flatbin_firmware::track_stored`,
+//! recorded on the host by `vectors_gen::track::record_case`: the same bins and exponents);
+//! no noise tracker rows (it holds its design: 9,272 B, and `NoiseTrackerQ15::new` takes the
+//! 6,672-byte design by value: it does not fit, see `track_stored.rs`), and no receiver at
+//! N = 256 (about 21 KB). `ici_q15_predict` needs no receiver: N = 64 and 256 on both cores.
+//! The firmware prints `trackskip` lines with the sizes.
 //!
 //! Region 0 is the empty stage. Exit status: the number of failures.
 
 #![no_std]
 #![no_main]
-// The Cortex-M0 build measures only `set_bin_noise` and `ici_q15_predict`.
+// The Cortex-M0 build measures `set_bin_noise`, `ici_q15_predict` and (on stored receiver
+// outputs) the Doppler, delay and I/Q estimators.
 #![cfg_attr(core_m0, allow(unused_imports, dead_code))]
 
 use core::hint::black_box;
@@ -362,6 +366,79 @@ where
 #[cfg(core_m0)]
 static mut RX_64: Result<Rx<64>, ConfigError> = Err(NOT_BUILT);
 
+/// The Doppler, delay-spread and I/Q estimators at size `N` (`P` pilots) on the stored
+/// receiver outputs of the same frame (`flatbin_firmware::track_stored`, recorded on the host
+/// by `vectors_gen::track::record_case`: frame 0 of case `CASE` is what `run` receives),
+/// for the Cortex-M0, whose RAM does not hold them beside the receiver. The estimators live
+/// on this frame's stack.
+#[cfg(core_m0)]
+#[inline(never)]
+fn stored_estimators<const N: usize, const P: usize>(failures: &mut u32)
+where
+    Tables: flatbin_firmware::track_stored::TrackStored<N>,
+{
+    use flatbin_firmware::track_stored::stored;
+    use vectors_gen::track::TRACK_CASES;
+    let (Ok(nu), Some(case_pos)) = (
+        Numerology::new(numerology_params(N)),
+        TRACK_CASES.iter().position(|&c| c == CASE),
+    ) else {
+        return fail("track: no numerology or stored case", N, failures);
+    };
+    let mut doppler = DopplerEstimatorQ15::<N, P, H>::new(&nu, DopplerConfigQ15::default());
+    let mut delay = DelaySpreadEstimatorQ15::<N>::new(&nu, delay_config(&nu));
+    let mut iq = IqImageEstimatorQ15::<N>::new(&nu);
+    let (Ok(doppler), Ok(delay), Ok(iq)) = (doppler.as_mut(), delay.as_mut(), iq.as_mut()) else {
+        return fail("track: an estimator was not built", N, failures);
+    };
+    let mut ok = true;
+    for symbol in 0..=MEASURED {
+        let Some(s) = stored::<N>(case_pos, 0, symbol) else {
+            return fail("track: no stored symbol", N, failures);
+        };
+        let (bins, exp) = (s.bins, s.bins_exp);
+        if symbol < MEASURED {
+            ok &= doppler.update(bins, exp, symbol).is_ok();
+            ok &= delay.update(bins, exp, symbol).is_ok();
+            ok &= iq.update(bins, exp, symbol).is_ok();
+            continue;
+        }
+        let mut r = None;
+        let m = measure(&mut || {
+            r = Some(black_box(&mut *doppler).update(black_box(bins), black_box(exp), symbol));
+        });
+        report("doppler_q15_update", N, m, failures);
+        ok &= matches!(r, Some(Ok(())));
+        let mut r = None;
+        let m = measure(&mut || {
+            r = Some(black_box(&mut *delay).update(black_box(bins), black_box(exp), symbol));
+        });
+        report("delay_q15_update", N, m, failures);
+        ok &= matches!(r, Some(Ok(())));
+        let mut r = None;
+        let m = measure(&mut || {
+            r = Some(black_box(&mut *iq).update(black_box(bins), black_box(exp), symbol));
+        });
+        report("iq_q15_update", N, m, failures);
+        ok &= matches!(r, Some(Ok(())));
+    }
+    let m = measure(&mut || {
+        black_box(black_box(&*doppler).estimate());
+    });
+    report("doppler_q15_estimate", N, m, failures);
+    let m = measure(&mut || {
+        black_box(black_box(&*delay).estimate());
+    });
+    report("delay_q15_estimate", N, m, failures);
+    let m = measure(&mut || {
+        black_box(black_box(&*iq).estimate());
+    });
+    report("iq_q15_estimate", N, m, failures);
+    if !ok {
+        fail("track: a call reported an error", N, failures);
+    }
+}
+
 #[entry]
 fn main() -> ! {
     cortex_m::interrupt::disable();
@@ -383,14 +460,13 @@ fn main() -> ! {
         // SAFETY: the only reference to the slot, taken once here.
         unsafe { bin_noise_only::<64>(&mut *addr_of_mut!(RX_64), &mut failures) };
         ici::<64>(0, &mut failures);
+        stored_estimators::<64, 16>(&mut failures);
         hprintln!(
-            "trackskip core={} n=64 receiver={} noise_track={} doppler={} delay={} iq={} bytes (with ReceiverQ15::new's stack, more than the 16 KiB RAM)",
+            "trackskip core={} n=64 stage=noise_track receiver={} noise_track={} design={} bytes (beside the receiver, or alone with the design's copy NoiseTrackerQ15::new takes by value: more than the 16 KiB RAM; see track_stored.rs)",
             CORE,
             size_of::<Rx<64>>(),
             size_of::<NoiseTrackerQ15<64>>(),
-            size_of::<DopplerEstimatorQ15<64, 16, H>>(),
-            size_of::<DelaySpreadEstimatorQ15<64>>(),
-            size_of::<IqImageEstimatorQ15<64>>()
+            size_of::<flatbin::noise_track_q15::NoiseTrackDesignQ15<64>>()
         );
         hprintln!(
             "trackskip core={} n=256 stage=receiver-fed bytes={} (ReceiverQ15<256>)",

@@ -19,7 +19,8 @@
 //! runs the receiver with `set_bin_noise` (the noise the design assumes) and the ICI table at
 //! N = 64, and the ICI table at 256: `ReceiverQ15<64>` (6,144 B) with the trackers and the
 //! ~6 KB of stack `ReceiverQ15::new` takes exceeds its 16 KiB (the `trackskip` line gives the
-//! sizes). Exit status: the number of failures.
+//! sizes). The M0 checks the Doppler, delay-spread and I/Q estimators at N = 64 without the
+//! receiver, on its stored outputs: `track_stored.rs`. Exit status: the number of failures.
 
 #![no_std]
 #![no_main]

@@ -20,7 +20,9 @@ use flatbin::fixed::Cq15;
 use flatbin::fixed_math::Scaled;
 use flatbin::ici_q15::{IciPredictionQ15, IciTableQ15, MAX_EPS_Q16, MAX_FD_T_Q16};
 use flatbin::iq_image_q15::{IqImageEstimatorQ15, IqImageQ15};
-use flatbin::noise_track_q15::{NoiseStatsQ15, NoiseTrackDesignQ15, NoiseTrackerQ15};
+use flatbin::noise_track_q15::{
+    NoiseStatsQ15, NoiseTrackDesignQ15, NoiseTrackerQ15, SymbolViewQ15,
+};
 use flatbin::receiver_q15::ReceiverQ15;
 use flatbin::Numerology;
 
@@ -86,9 +88,7 @@ pub type Emit<'e> = dyn FnMut(&str, &[u32]) + 'e;
 
 /// FNV-1a over bytes, as a word.
 fn fnv(bytes: impl Iterator<Item = u8>) -> u32 {
-    bytes.fold(0x811c_9dc5u32, |h, b| {
-        (h ^ u32::from(b)).wrapping_mul(0x0100_0193)
-    })
+    fnv_from(HASH_START, bytes)
 }
 
 fn lo(v: u64) -> u32 {
@@ -286,19 +286,7 @@ where
         // Per frame.
         let noise = b.noise.get_mut(..N).unwrap_or_default();
         let count = if let Some(n) = t.noise.as_deref_mut() {
-            emit("frame_stats", &stats_words(&n.frame_stats()));
-            let count = n.bin_noise(noise);
-            let mut flags = [0u32; 4];
-            for (k, f) in (0..N)
-                .filter(|&k| n.is_interfered(k))
-                .map(|k| (k / 32, k % 32))
-            {
-                if let Some(w) = flags.get_mut(k) {
-                    *w |= 1 << f;
-                }
-            }
-            emit("interfered", &flags);
-            count
+            noise_records(n, noise, emit)
         } else {
             // The noise the design assumes: N0 = RX_NOISE_VAR of a unit-energy symbol.
             let n0 = track_design.unit_power / 100;
@@ -307,19 +295,7 @@ where
             }
             used
         };
-        let words = noise.get(..count).unwrap_or_default();
-        let mut w = [0u32; 2];
-        for chunk in words.chunks(8) {
-            let mut rec = [0u32; 16];
-            for (r, v) in rec.chunks_mut(2).zip(chunk) {
-                w[0] = lo(*v);
-                w[1] = hi(*v);
-                for (d, s) in r.iter_mut().zip(w) {
-                    *d = s;
-                }
-            }
-            emit("bin_noise", rec.get(..2 * chunk.len()).unwrap_or_default());
-        }
+        bin_noise_records(noise.get(..count).unwrap_or_default(), emit);
         let r = rx.set_bin_noise(
             noise.get(..count).unwrap_or_default(),
             &track_design.estimator_mse[..],
@@ -329,25 +305,271 @@ where
             .iter()
             .flat_map(|s| s.mant.to_le_bytes().into_iter().chain(s.exp.to_le_bytes())));
         emit("weights", &[err(&r), count as u32, hash]);
-        let mut fd_t_q16 = 0u32;
-        if let Some(d) = t.doppler.as_deref_mut() {
-            let e = d.estimate();
-            if let Some(e) = e {
-                fd_t_q16 = (e.fd_t_q31.max(0) as u32) >> 15;
+        estimate_records(t, emit);
+    }
+    ok
+}
+
+/// The noise tracker's per-frame records (`frame_stats`, `interfered`) and its per-bin noise
+/// written to `noise`; returns the number of values written (`bin_noise`).
+fn noise_records<const N: usize>(
+    n: &NoiseTrackerQ15<N>,
+    noise: &mut [u64],
+    emit: &mut Emit,
+) -> usize {
+    emit("frame_stats", &stats_words(&n.frame_stats()));
+    let count = n.bin_noise(noise);
+    let mut flags = [0u32; 4];
+    for (k, f) in (0..N)
+        .filter(|&k| n.is_interfered(k))
+        .map(|k| (k / 32, k % 32))
+    {
+        if let Some(w) = flags.get_mut(k) {
+            *w |= 1 << f;
+        }
+    }
+    emit("interfered", &flags);
+    count
+}
+
+/// The `bin_noise` records: eight values (low, high word) a record.
+fn bin_noise_records(words: &[u64], emit: &mut Emit) {
+    let mut w = [0u32; 2];
+    for chunk in words.chunks(8) {
+        let mut rec = [0u32; 16];
+        for (r, v) in rec.chunks_mut(2).zip(chunk) {
+            w[0] = lo(*v);
+            w[1] = hi(*v);
+            for (d, s) in r.iter_mut().zip(w) {
+                *d = s;
             }
-            emit("doppler", &doppler_words(e));
         }
-        if let Some(d) = t.delay.as_deref() {
-            emit("delay", &delay_words(d.estimate()));
+        emit("bin_noise", rec.get(..2 * chunk.len()).unwrap_or_default());
+    }
+}
+
+/// The per-frame estimate records of the present estimators (`doppler`, `delay`, `iq`) and
+/// the ICI prediction from the Doppler estimate (`ici`; `fd·T` 0 without one).
+fn estimate_records<const N: usize, const P: usize, const H: usize>(
+    t: &mut Trackers<'_, N, P, H>,
+    emit: &mut Emit,
+) {
+    let mut fd_t_q16 = 0u32;
+    if let Some(d) = t.doppler.as_deref_mut() {
+        let e = d.estimate();
+        if let Some(e) = e {
+            fd_t_q16 = (e.fd_t_q31.max(0) as u32) >> 15;
         }
-        if let Some(q) = t.iq.as_deref() {
-            emit("iq", &iq_words(q.estimate()));
+        emit("doppler", &doppler_words(e));
+    }
+    if let Some(d) = t.delay.as_deref() {
+        emit("delay", &delay_words(d.estimate()));
+    }
+    if let Some(q) = t.iq.as_deref() {
+        emit("iq", &iq_words(q.estimate()));
+    }
+    if let Some(table) = t.ici {
+        emit("ici", &ici_words(&table.predict(fd_t_q16, TRACK_EPS_Q16)));
+    }
+}
+
+/// What the trackers read of one received symbol, stored: the receiver's FFT output and its
+/// block exponent, its channel estimate per used bin and exponent, the common phase it
+/// applied, the equalized data symbols, and whether `receive` failed.
+#[derive(Clone, Copy, Debug)]
+pub struct StoredSymbol<'a, const N: usize> {
+    /// FFT output, natural order.
+    pub bins: &'a [Cq15; N],
+    /// Block exponent of `bins`.
+    pub bins_exp: i32,
+    /// Channel estimate per used bin.
+    pub estimate: &'a [Cq15],
+    /// Block exponent of `estimate`.
+    pub estimate_exp: i32,
+    /// The common-phase rotation applied, if any.
+    pub common_phase: Option<Cq15>,
+    /// Equalized data symbols (`data_len` of the symbol).
+    pub equalized: &'a [Cq15],
+    /// `ReceiverQ15::receive` reported an error.
+    pub rx_error: bool,
+}
+
+impl<'a, const N: usize> StoredSymbol<'a, N> {
+    /// The noise tracker's view of the symbol.
+    pub fn view(&self) -> SymbolViewQ15<'a, N> {
+        SymbolViewQ15 {
+            bins: self.bins,
+            bins_exp: self.bins_exp,
+            estimate: self.estimate,
+            estimate_exp: self.estimate_exp,
+            common_phase: self.common_phase,
         }
-        if let Some(table) = t.ici {
-            emit("ici", &ici_words(&table.predict(fd_t_q16, TRACK_EPS_Q16)));
+    }
+
+    /// FNV-1a hash of every field (the firmware prints it for its stored tables; the host
+    /// records its own and compares).
+    pub fn hash(&self, h: u32) -> u32 {
+        let cq = |c: &Cq15| [c.re as u32, c.im as u32];
+        let cpe = match self.common_phase {
+            None => [u32::MAX, 0, 0],
+            Some(c) => [1, c.re as u32, c.im as u32],
+        };
+        let it = self
+            .bins
+            .iter()
+            .flat_map(cq)
+            .chain([self.bins_exp as u32, self.estimate.len() as u32])
+            .chain(self.estimate.iter().flat_map(cq))
+            .chain([self.estimate_exp as u32])
+            .chain(cpe)
+            .chain([self.equalized.len() as u32])
+            .chain(self.equalized.iter().flat_map(cq))
+            .chain([u32::from(self.rx_error)]);
+        fnv_from(h, it.flat_map(u32::to_le_bytes))
+    }
+}
+
+/// FNV-1a over bytes from state `h`.
+fn fnv_from(h: u32, bytes: impl Iterator<Item = u8>) -> u32 {
+    bytes.fold(h, |h, b| (h ^ u32::from(b)).wrapping_mul(0x0100_0193))
+}
+
+/// The FNV-1a offset basis (start of [`StoredSymbol::hash`] chains).
+pub const HASH_START: u32 = 0x811c_9dc5;
+
+/// Runs case `case_index` through `rx` exactly as [`run_case`] does (reset, the case's gain,
+/// [`TRACK_FRAMES`] frames of [`RX_SYMBOLS`] symbols) and hands `visit` what the trackers read
+/// of each symbol (frame, symbol, stored symbol): the host records the receiver's outputs for
+/// [`run_stored`] (`firmware/build.rs` writes them into flash). `set_bin_noise` is not
+/// called: it changes only the LLR weights, none of what is recorded. False when a buffer is
+/// short, the case is unknown or the generator fails.
+pub fn record_case<F, const N: usize>(
+    case_index: usize,
+    nu: &Numerology,
+    rx: &mut ReceiverQ15<F, N, RX_K, RX_M>,
+    b: &mut Buffers<'_>,
+    visit: &mut dyn FnMut(u32, u32, &StoredSymbol<'_, N>),
+) -> bool
+where
+    F: OfdmFft<N, Sample = Cq15>,
+{
+    let Some(case) = RX_CASES.get(case_index) else {
+        return false;
+    };
+    if b.samples.len() < N + N / 8
+        || b.equalized.len() < N
+        || b.sinr.len() < N
+        || b.llrs.len() < 4 * N
+    {
+        return false;
+    }
+    rx.reset();
+    rx.set_gain(case.gain);
+    let mut ok = true;
+    for frame_index in 0..TRACK_FRAMES {
+        let Some(mut frame) = RxFrame::<N>::new(case_index) else {
+            return false;
+        };
+        for symbol in 0..RX_SYMBOLS {
+            ok &= frame.symbol(symbol, b.samples);
+            let x = b.samples.get(..N + N / 8).unwrap_or_default();
+            let r = rx.receive(x, symbol, case.modulation, b.equalized, b.sinr, b.llrs);
+            let (bins, bins_exp) = rx.bins_with_exponent();
+            let (estimate, estimate_exp) = rx.estimate();
+            let stored = StoredSymbol {
+                bins,
+                bins_exp,
+                estimate,
+                estimate_exp,
+                common_phase: rx.applied_common_phase(),
+                equalized: b.equalized.get(..nu.data_len(symbol)).unwrap_or_default(),
+                rx_error: r.is_err(),
+            };
+            visit(frame_index, symbol, &stored);
         }
     }
     ok
+}
+
+/// The stored symbols of one case: `symbol(frame, symbol)`.
+pub type StoredSource<'s, 'a, const N: usize> =
+    dyn Fn(u32, u32) -> Option<StoredSymbol<'a, N>> + 's;
+
+/// [`run_case`] without the receiver, for a core whose RAM does not hold the receiver beside
+/// the trackers: the present `trackers` read the stored receiver outputs of case
+/// `case_index` (`source`, recorded by [`record_case`]) frame by frame and emit the same
+/// per-frame records as [`run_case`] (`frame_stats`, `interfered`, `bin_noise`, `doppler`,
+/// `delay`, `iq`, `ici`; no `weights`: there is no receiver), and per symbol `tsymbol`
+/// (frame, symbol, block exponent, tracker error bits as in `symbol`). `noise` takes the
+/// per-bin noise (at least `N`). False when a stored symbol is missing, `noise` is short or
+/// the case is unknown.
+pub fn run_stored<const N: usize, const P: usize, const H: usize>(
+    case_index: usize,
+    nu: &Numerology,
+    source: &StoredSource<'_, '_, N>,
+    t: &mut Trackers<'_, N, P, H>,
+    noise: &mut [u64],
+    emit: &mut Emit,
+) -> bool {
+    let Some(case) = RX_CASES.get(case_index) else {
+        return false;
+    };
+    if noise.len() < N {
+        return false;
+    }
+    if let Some(n) = t.noise.as_deref_mut() {
+        n.reset();
+    }
+    if let Some(d) = t.doppler.as_deref_mut() {
+        d.reset();
+    }
+    for frame_index in 0..TRACK_FRAMES {
+        if let Some(n) = t.noise.as_deref_mut() {
+            n.start_frame();
+        }
+        if let Some(d) = t.delay.as_deref_mut() {
+            d.reset();
+        }
+        if let Some(q) = t.iq.as_deref_mut() {
+            q.reset();
+        }
+        for symbol in 0..RX_SYMBOLS {
+            let Some(s) = source(frame_index, symbol) else {
+                return false;
+            };
+            let data = nu.data_len(symbol);
+            let mut errors = [u32::from(s.rx_error), 0, 0, 0, 0];
+            if let Some(n) = t.noise.as_deref_mut() {
+                let eq = s.equalized.get(..data).unwrap_or_default();
+                errors[1] = err(&n.update(symbol, &s.view(), eq, case.modulation));
+            }
+            if let Some(d) = t.doppler.as_deref_mut() {
+                errors[2] = err(&d.update(s.bins, s.bins_exp, symbol));
+            }
+            if let Some(d) = t.delay.as_deref_mut() {
+                errors[3] = err(&d.update(s.bins, s.bins_exp, symbol));
+            }
+            if let Some(q) = t.iq.as_deref_mut() {
+                errors[4] = err(&q.update(s.bins, s.bins_exp, symbol));
+            }
+            emit(
+                "tsymbol",
+                &[
+                    frame_index,
+                    symbol,
+                    s.bins_exp as u32,
+                    errors[0] | errors[1] << 1 | errors[2] << 2 | errors[3] << 3 | errors[4] << 4,
+                ],
+            );
+        }
+        let noise = noise.get_mut(..N).unwrap_or_default();
+        if let Some(n) = t.noise.as_deref() {
+            let count = noise_records(n, noise, emit);
+            bin_noise_records(noise.get(..count).unwrap_or_default(), emit);
+        }
+        estimate_records(t, emit);
+    }
+    true
 }
 
 /// FNV-1a hash of every field of a noise tracker design (the firmware prints it for its
