@@ -68,6 +68,8 @@
 //! symbol ([`NoiseTrackerQ15::update`], [`NoiseTrackerQ15::start_frame`],
 //! [`NoiseTrackerQ15::frame_stats`], [`NoiseTrackerQ15::bin_noise`]) is integer only.
 
+use core::borrow::Borrow;
+
 use crate::dd_bias::dd_error;
 use crate::error::{ConfigError, ProcessError};
 use crate::estimate::ChannelEstimator;
@@ -401,10 +403,18 @@ impl NoiseStatsQ15 {
 }
 
 /// Integer per-bin noise-plus-interference tracker for FFT size `N`.
+///
+/// `D` holds the design: the design itself (the default: the tracker owns it, about
+/// `24·N` bytes + 5 KiB), or a reference to one kept elsewhere, e.g.
+/// `&'static NoiseTrackDesignQ15<N>` in flash, so that RAM holds only the tracker's own state
+/// (about `38·N` bytes; what a 16 KiB Cortex-M0 needs).
 #[derive(Clone, Debug)]
-pub struct NoiseTrackerQ15<const N: usize> {
+pub struct NoiseTrackerQ15<const N: usize, D = NoiseTrackDesignQ15<N>>
+where
+    D: Borrow<NoiseTrackDesignQ15<N>>,
+{
     numerology: Numerology,
-    design: NoiseTrackDesignQ15<N>,
+    design: D,
     config: NoiseTrackConfigQ15,
     /// Per FFT index: forgotten mean (power units) and symbols seen (saturating).
     var: [u64; N],
@@ -435,12 +445,13 @@ pub struct NoiseTrackerQ15<const N: usize> {
     saturated: bool,
 }
 
-impl<const N: usize> NoiseTrackerQ15<N> {
-    /// A tracker for `numerology` with its host-built `design`. No floating point. Errors:
-    /// FFT size not `N`, `lambda_shift > 15`, a detection ratio not above 1, `μ ≥ 1`.
+impl<const N: usize, D: Borrow<NoiseTrackDesignQ15<N>>> NoiseTrackerQ15<N, D> {
+    /// A tracker for `numerology` with its host-built `design` (owned, or a reference). No
+    /// floating point. Errors: FFT size not `N`, `lambda_shift > 15`, a detection ratio not
+    /// above 1, `μ ≥ 1`.
     pub fn new(
         numerology: &Numerology,
-        design: NoiseTrackDesignQ15<N>,
+        design: D,
         config: NoiseTrackConfigQ15,
     ) -> Result<Self, ConfigError> {
         if numerology.fft_len() != N {
@@ -489,7 +500,7 @@ impl<const N: usize> NoiseTrackerQ15<N> {
 
     /// The design in use.
     pub fn design(&self) -> &NoiseTrackDesignQ15<N> {
-        &self.design
+        self.design.borrow()
     }
 
     /// Forgets everything (a new link).
@@ -684,6 +695,7 @@ impl<const N: usize> NoiseTrackerQ15<N> {
         );
         let (cr, ci) = self
             .design
+            .borrow()
             .pilot_coef
             .get(u)
             .copied()
@@ -711,9 +723,18 @@ impl<const N: usize> NoiseTrackerQ15<N> {
             (ya.0 - ahu.0, ya.1 - ahu.1)
         };
         let res = norm_sqr(r);
-        let scale = self.design.pilot_scale.get(u).copied().unwrap_or_default();
+        let scale = self
+            .design
+            .borrow()
+            .pilot_scale
+            .get(u)
+            .copied()
+            .unwrap_or_default();
         let o = cap(mul_scaled(res, scale), sat);
-        let gain = cap(mul_scaled(norm_sqr(ahu), self.design.inv_pilot_power), sat);
+        let gain = cap(
+            mul_scaled(norm_sqr(ahu), self.design.borrow().inv_pilot_power),
+            sat,
+        );
         (o, gain)
     }
 
@@ -773,9 +794,16 @@ impl<const N: usize> NoiseTrackerQ15<N> {
         let ae = self.forget(ae, err, s);
         let obs = mul_shr(err, dh, EPS_FRAC_BITS).min(POWER_MAX);
         let ah = self.forget(ah, obs, s);
-        let e = self.design.estimator_mse.get(u).copied().unwrap_or(0);
+        let e = self
+            .design
+            .borrow()
+            .estimator_mse
+            .get(u)
+            .copied()
+            .unwrap_or(0);
         let r = if ae > 0 {
             self.design
+                .borrow()
                 .dd
                 .get(table)
                 .map_or(1 << RATIO_FRAC_BITS, |t| t.ratio_q16(ae))
