@@ -9,7 +9,8 @@
 //! ```text
 //! transmit:  bits → modulation (Gray map) → grid (data + pilots, numerology) → IFFT → + CP
 //! receive:   samples (N + L) → front (strip CP, FFT, unitary scaling) → bins
-//!            → [pilot estimation, equalization: later stages] → demap (hard / max-log LLR)
+//!            → pilot estimation, equalization → demap (hard / max-log LLR)
+//!            → de-interleave → Viterbi → CRC
 //! ```
 //!
 //! * [`numerology`] — FFT size, cyclic prefix, used band, pilot pattern; the rules every layout
@@ -26,6 +27,11 @@
 //! * [`nco`] — NCO derotation of a carrier frequency offset before the FFT (f32, and Q15 from
 //!   a compile-time sine table).
 //! * [`demap`] — hard decisions and channel-state-weighted max-log LLRs (f32 and saturated i8).
+//! * [`interleave`] — the bit interleaver over one OFDM symbol's coded bits, and its inverse on
+//!   LLRs.
+//! * [`conv_code`] — the K = 7 (133/171) convolutional code, punctured rates 2/3 and 3/4;
+//!   [`viterbi`] — its soft-decision decoder on i8 LLRs with a fixed-depth sliding traceback.
+//! * [`crc`] — CRC-16 and CRC-32 frame checks.
 //!
 //! ## Example: one symbol through transmitter and receiver
 //!
