@@ -2,8 +2,8 @@
 // `include!` of this one; kept apart from the other probes so their figures do not move).
 //
 // Each holds one integer tracking stage at one size and nothing else:
-// - `size_track_noise_<n>`: `NoiseTrackerQ15::new` from the `build.rs` design table,
-//   `update`, `start_frame`, `frame_stats`, `bin_noise`;
+// - `size_track_noise_<n>`: `NoiseTrackerQ15::new` from the `build.rs` design table (a copy
+//   on the M4F, borrowed on the M0), `update`, `start_frame`, `frame_stats`, `bin_noise`;
 // - `size_track_doppler_<n>`: `DopplerEstimatorQ15::<N, N/4, 32>::new`, `update`, `estimate`;
 // - `size_track_delay_<n>`: `DelaySpreadEstimatorQ15::new`, `update`, `estimate`;
 // - `size_track_iq_<n>`: `IqImageEstimatorQ15::new`, `update`, `estimate`;
@@ -92,11 +92,15 @@ where
     let bins = black_box([Cq15::ZERO; N]);
     if starts_with("size_track_noise_") {
         use flatbin::noise_track_q15::{NoiseTrackConfigQ15, NoiseTrackerQ15, SymbolViewQ15};
-        if let Ok(mut t) = NoiseTrackerQ15::new(
-            &nu,
-            Tables::track_design().clone(),
-            black_box(NoiseTrackConfigQ15::default()),
-        ) {
+        // The Cortex-M0 borrows the design from flash (as its firmware does); the M4F owns a
+        // copy.
+        #[cfg(core_m0)]
+        let design = Tables::track_design();
+        #[cfg(not(core_m0))]
+        let design = Tables::track_design().clone();
+        if let Ok(mut t) =
+            NoiseTrackerQ15::new(&nu, design, black_box(NoiseTrackConfigQ15::default()))
+        {
             let t = black_box(&mut t);
             t.start_frame();
             let view = SymbolViewQ15 {

@@ -91,10 +91,13 @@ const HEADER: &str = "\
 #   ReceiverQ15::set_bin_noise with the tracker's bin_noise (cortex-m0: the noise the design
 #   assumes; it may also run per symbol), noise_track_q15_frame_stats, doppler_q15_estimate,
 #   delay_q15_estimate, iq_q15_estimate, ici_q15_predict = IciTableQ15::predict. The M0 has
-#   set_bin_noise (n = 64), ici_q15_predict, and the doppler/delay/iq rows at n = 64 measured
-#   without the receiver on its outputs of the same frame stored in flash (recorded on the
-#   host by vectors_gen::track::record_case: the same bins and exponents); no noise tracker
-#   rows (it does not fit its 16 KiB of RAM). code_bytes: a firmware with the stage
+#   set_bin_noise (n = 64), ici_q15_predict, and the noise_track/doppler/delay/iq rows at
+#   n = 64 measured without the receiver on its outputs of the same frame stored in flash
+#   (recorded on the host by vectors_gen::track::record_case: the same bins, exponents,
+#   channel estimate, common phase and equalized symbols); its noise_track_q15_update is
+#   NoiseTrackerQ15::update on that view (what update_from_receiver calls), the tracker
+#   borrowing its design from the flash table (NoiseTrackerQ15<64, &'static
+#   NoiseTrackDesignQ15<64>>; the M4F owns a copy). code_bytes: a firmware with the stage
 #   (src/size_track_probe.rs) minus size_numerology; ici_q15 includes IciTableQ15::new
 #   (configuration, f32: soft float on the M0); set_bin_noise is measured against a firmware
 #   that only builds the receiver.

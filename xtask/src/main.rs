@@ -70,8 +70,8 @@ pub struct Core {
     /// FFT sizes of `ici_q15_predict` (a 520-byte table).
     pub track_ici_sizes: &'static [usize],
     /// FFT sizes of the tracking stages fed stored receiver outputs (`track_stored`, and the
-    /// estimators' cost rows where `track_sizes` lacks them): cores whose RAM does not hold
-    /// the receiver beside the trackers.
+    /// noise tracker's and estimators' cost rows where `track_sizes` lacks them): cores whose
+    /// RAM does not hold the receiver beside the trackers.
     pub track_stored_sizes: &'static [usize],
 }
 
@@ -104,14 +104,15 @@ pub const CORES: [Core; 2] = [
         // FrameReceiverQ15<64, 4, 4, 512> alone is about 14 KB, and its push needs several KB
         // of stack: it does not fit 16 KiB at any size (see firmware/src/bin/sync_vectors.rs).
         sync_frame_sizes: &[],
-        // ReceiverQ15<64> (6,144 B) with NoiseTrackerQ15<64> (9,272 B), or with the Doppler,
-        // delay and I/Q estimators (4,496 B) and the ~6 KB of stack ReceiverQ15::new takes,
-        // exceeds 16 KiB: no receiver-fed tracker on the M0 (firmware/src/bin/track_cost.rs).
+        // ReceiverQ15<64> (6,144 B) with the noise tracker (2,600 B with its design borrowed
+        // from flash) and the Doppler, delay and I/Q estimators (4,496 B), and the ~6 KB of
+        // stack ReceiverQ15::new takes, exceed 16 KiB: no receiver-fed tracker on the M0
+        // (firmware/src/bin/track_cost.rs).
         track_sizes: &[],
         track_bin_noise_sizes: &[64],
         track_ici_sizes: &[64, 256],
-        // The Doppler, delay and I/Q estimators on stored receiver outputs (flash tables);
-        // the noise tracker does not fit (firmware/src/bin/track_stored.rs).
+        // The noise tracker (design borrowed from flash) and the Doppler, delay and I/Q
+        // estimators on stored receiver outputs (flash tables; firmware/src/bin/track_stored.rs).
         track_stored_sizes: &[64],
     },
 ];
@@ -174,12 +175,12 @@ pub fn track_stages(core: &Core) -> Vec<(&'static str, &'static [usize])> {
         core.track_sizes
     };
     vec![
-        ("noise_track_q15_update", core.track_sizes),
+        ("noise_track_q15_update", est),
         ("doppler_q15_update", est),
         ("delay_q15_update", est),
         ("iq_q15_update", est),
         ("set_bin_noise", core.track_bin_noise_sizes),
-        ("noise_track_q15_frame_stats", core.track_sizes),
+        ("noise_track_q15_frame_stats", est),
         ("doppler_q15_estimate", est),
         ("delay_q15_estimate", est),
         ("iq_q15_estimate", est),

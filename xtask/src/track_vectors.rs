@@ -250,16 +250,21 @@ impl<const N: usize> Owned<N> {
 
 /// The host's side of `firmware/src/bin/track_stored.rs` at size `N`: records the receiver's
 /// outputs of the tracking cases with its own design and receiver (`record_case`), hashes
-/// them as the firmware hashes its `build.rs` tables, and runs the estimators' pass
-/// (`run_stored`: Doppler, delay spread, I/Q image, ICI) on them. Returns the records and
-/// the hash.
-fn host_stored<const N: usize, const P: usize>() -> Result<(Vec<Rec>, u32), String> {
+/// them as the firmware hashes its `build.rs` tables, and runs the trackers' pass
+/// (`run_stored`: noise tracker with its design borrowed, as on the target; Doppler, delay
+/// spread, I/Q image, ICI) on them. Returns the records, the stored outputs' hash and the
+/// noise tracker design's hash.
+fn host_stored<const N: usize, const P: usize>() -> Result<(Vec<Rec>, u32, u32), String> {
     let nu = Numerology::new(numerology_params(N)).map_err(|e| format!("numerology: {e:?}"))?;
     let residual = <Q15Fft<N> as OfdmFft<N>>::RESIDUAL_SCALE;
     let spec = &RX_DESIGNS[TRACK_RX_DESIGN];
     let design = Box::new(
         DesignQ15::<N, RX_K, RX_M>::new(&nu, &receiver_config(spec), residual)
             .map_err(|e| format!("receiver design: {e:?}"))?,
+    );
+    let track_design = Box::new(
+        NoiseTrackDesignQ15::<N>::new::<RX_K, RX_M>(&nu, &receiver_config(spec), residual)
+            .map_err(|e| format!("tracker design: {e:?}"))?,
     );
     let mut rx = Box::new(
         ReceiverQ15::<Q15Fft<N>, N, RX_K, RX_M>::new(&nu, Q15Fft::new(), *design)
@@ -298,6 +303,14 @@ fn host_stored<const N: usize, const P: usize>() -> Result<(Vec<Rec>, u32), Stri
         }
         stored.push(symbols);
     }
+    let mut tracker = Box::new(
+        NoiseTrackerQ15::<N, &NoiseTrackDesignQ15<N>>::new(
+            &nu,
+            &*track_design,
+            NoiseTrackConfigQ15::default(),
+        )
+        .map_err(|e| format!("noise tracker: {e:?}"))?,
+    );
     let mut doppler = Box::new(
         DopplerEstimatorQ15::<N, P, H>::new(&nu, DopplerConfigQ15::default())
             .map_err(|e| format!("doppler: {e:?}"))?,
@@ -310,8 +323,8 @@ fn host_stored<const N: usize, const P: usize>() -> Result<(Vec<Rec>, u32), Stri
     let ici = IciTableQ15::new(N).map_err(|e| format!("ici: {e:?}"))?;
     let mut out = Vec::new();
     for (case, symbols) in TRACK_CASES.iter().zip(&stored) {
-        let mut t = Trackers::<N, P, H> {
-            noise: None,
+        let mut t = Trackers::<N, P, H, &NoiseTrackDesignQ15<N>> {
+            noise: Some(&mut *tracker),
             doppler: Some(&mut *doppler),
             delay: Some(&mut *delay),
             iq: Some(&mut *iq),
@@ -335,13 +348,13 @@ fn host_stored<const N: usize, const P: usize>() -> Result<(Vec<Rec>, u32), Stri
             return Err(format!("host stored run failed on case {case}"));
         }
     }
-    Ok((out, hash))
+    Ok((out, hash, track_design_hash(&track_design)))
 }
 
 /// Runs `track_stored` (the trackers on stored receiver outputs, for a core whose RAM does
 /// not hold the receiver beside them) and compares every record with the host's; then checks
-/// that the host's stored run gives the same estimates as its full receiver run
-/// (`run_case`), so the stored outputs stand for the receiver.
+/// that the host's stored run gives the same noise records and estimates as its full receiver
+/// run (`run_case`), so the stored outputs stand for the receiver.
 pub fn check_stored(core: &Core, elf: &Path, failures: &mut Failures) -> Result<(), String> {
     let out = tools::run_qemu(core, elf)?;
     if out.status != Some(0) {
@@ -355,7 +368,9 @@ pub fn check_stored(core: &Core, elf: &Path, failures: &mut Failures) -> Result<
     let blocks = parse_blocks_tagged(&out.stdout, "tracks ")
         .map_err(|e| format!("{}: track_stored output: {e}", core.name))?;
     for line in out.stdout.lines().filter(|l| {
-        l.starts_with("tracksize ") || l.starts_with("trackskip ") || l.starts_with("trackstore ")
+        ["tracksize ", "trackskip ", "trackstore ", "trackdesign "]
+            .iter()
+            .any(|p| l.starts_with(p))
     }) {
         println!("{line}");
     }
@@ -369,7 +384,7 @@ pub fn check_stored(core: &Core, elf: &Path, failures: &mut Failures) -> Result<
             64 => (host_stored::<64, 16>(), host::<64, 16>(true)),
             _ => (Err(format!("no host run at N = {n}")), Err(String::new())),
         };
-        let (records, hash) = match host {
+        let (records, hash, design_hash) = match host {
             Ok(h) => h,
             Err(e) => {
                 failures.push(format!("{label}: host run failed: {e}"));
@@ -385,6 +400,16 @@ pub fn check_stored(core: &Core, elf: &Path, failures: &mut Failures) -> Result<
                 "{label}: the firmware's stored tables (hash {:?}) are not the host's \
                  recording ({hash:08x})",
                 f.get("hash")
+            ));
+        }
+        let line = out.stdout.lines().find(|l| {
+            l.starts_with("trackdesign ") && tools::fields(l).get("n") == Some(&n.to_string())
+        });
+        let f = line.map(tools::fields).unwrap_or_default();
+        if f.get("track") != Some(&format!("{design_hash:08x}")) {
+            failures.push(format!(
+                "{label}: the firmware's noise tracker design table (hash {:?}) is not the                  host's ({design_hash:08x})",
+                f.get("track")
             ));
         }
         let mine: Vec<_> = blocks
@@ -422,8 +447,9 @@ pub fn check_stored(core: &Core, elf: &Path, failures: &mut Failures) -> Result<
         if bad > 3 {
             failures.push(format!("{label}: {bad} records differ in all"));
         }
-        // The stored run against the full receiver run, both on the host: the estimates and
-        // ICI predictions in order, and each symbol's block exponent.
+        // The stored run against the full receiver run, both on the host: the noise tracker's
+        // records, the estimates and ICI predictions in order, and each symbol's block
+        // exponent.
         let same_as_full = match full {
             Ok((full, _, _)) => {
                 let pick = |r: &[Rec], labels: &[&str]| -> Vec<(String, String, Vec<u32>)> {
@@ -440,7 +466,15 @@ pub fn check_stored(core: &Core, elf: &Path, failures: &mut Failures) -> Result<
                         })
                         .collect()
                 };
-                let est = ["doppler", "delay", "iq", "ici"];
+                let est = [
+                    "frame_stats",
+                    "interfered",
+                    "bin_noise",
+                    "doppler",
+                    "delay",
+                    "iq",
+                    "ici",
+                ];
                 let a = pick(&records, &est);
                 let b = pick(&full, &est);
                 let ea = pick(&records, &["tsymbol"]);
@@ -467,7 +501,7 @@ pub fn check_stored(core: &Core, elf: &Path, failures: &mut Failures) -> Result<
             "{:<11} {:>4} {:<28} {:>7} {:>8} {:>9} {:>13}",
             core.name,
             n,
-            "doppler+delay+iq+ici",
+            "noise+doppler+delay+iq+ici",
             mine.len(),
             words,
             if bad == 0 && mine.len() == records.len() {

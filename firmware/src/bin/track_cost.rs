@@ -20,20 +20,22 @@
 //!   symbol).
 //!
 //! On the Cortex-M0 (16 KiB RAM): `set_bin_noise` at N = 64 with the receiver (6,144 B) and the
-//! noise the design assumes; the Doppler, delay and I/Q rows at N = 64 without the receiver,
-//! on its outputs of the same frame stored in flash (`flatbin_firmware::track_stored`,
-//! recorded on the host by `vectors_gen::track::record_case`: the same bins and exponents);
-//! no noise tracker rows (it holds its design: 9,272 B, and `NoiseTrackerQ15::new` takes the
-//! 6,672-byte design by value: it does not fit, see `track_stored.rs`), and no receiver at
-//! N = 256 (about 21 KB). `ici_q15_predict` needs no receiver: N = 64 and 256 on both cores.
-//! The firmware prints `trackskip` lines with the sizes.
+//! noise the design assumes; the noise tracker, Doppler, delay and I/Q rows at N = 64 without
+//! the receiver, on its outputs of the same frame stored in flash
+//! (`flatbin_firmware::track_stored`, recorded on the host by
+//! `vectors_gen::track::record_case`: the same bins, exponents, channel estimate, common phase
+//! and equalized symbols): `noise_track_q15_update` is `NoiseTrackerQ15::update` on that view
+//! (what `update_from_receiver` calls), with the design borrowed from the flash table
+//! (`NoiseTrackerQ15<64, &'static NoiseTrackDesignQ15<64>>`: 2,600 B of state in RAM); no
+//! receiver at N = 256 (about 21 KB). `ici_q15_predict` needs no receiver: N = 64 and 256 on
+//! both cores. The firmware prints `trackskip` lines with the sizes.
 //!
 //! Region 0 is the empty stage. Exit status: the number of failures.
 
 #![no_std]
 #![no_main]
 // The Cortex-M0 build measures `set_bin_noise`, `ici_q15_predict` and (on stored receiver
-// outputs) the Doppler, delay and I/Q estimators.
+// outputs) the noise tracker and the Doppler, delay and I/Q estimators.
 #![cfg_attr(core_m0, allow(unused_imports, dead_code))]
 
 use core::hint::black_box;
@@ -49,9 +51,9 @@ use flatbin::fixed::Cq15;
 use flatbin::fixed_math::Scaled;
 use flatbin::ici_q15::IciTableQ15;
 use flatbin::iq_image_q15::IqImageEstimatorQ15;
-#[cfg(not(core_m0))]
-use flatbin::noise_track_q15::NoiseTrackConfigQ15;
-use flatbin::noise_track_q15::NoiseTrackerQ15;
+#[cfg(core_m0)]
+use flatbin::noise_track_q15::NoiseTrackDesignQ15;
+use flatbin::noise_track_q15::{NoiseTrackConfigQ15, NoiseTrackerQ15};
 use flatbin::receiver_q15::ReceiverQ15;
 use flatbin::{ConfigError, Numerology};
 use flatbin_firmware::rx_tables::{RxDesigns, Tables};
@@ -363,19 +365,42 @@ where
     }
 }
 
+/// The Cortex-M0's stored-output stages at one size (built in place in [`M0Arena`]).
 #[cfg(core_m0)]
-static mut RX_64: Result<Rx<64>, ConfigError> = Err(NOT_BUILT);
+struct StoredStages<const N: usize, const P: usize> {
+    noise: Result<NoiseTrackerQ15<N, &'static NoiseTrackDesignQ15<N>>, ConfigError>,
+    doppler: Result<DopplerEstimatorQ15<N, P, H>, ConfigError>,
+    delay: Result<DelaySpreadEstimatorQ15<N>, ConfigError>,
+    iq: Result<IqImageEstimatorQ15<N>, ConfigError>,
+}
 
-/// The Doppler, delay-spread and I/Q estimators at size `N` (`P` pilots) on the stored
-/// receiver outputs of the same frame (`flatbin_firmware::track_stored`, recorded on the host
-/// by `vectors_gen::track::record_case`: frame 0 of case `CASE` is what `run` receives),
-/// for the Cortex-M0, whose RAM does not hold them beside the receiver. The estimators live
-/// on this frame's stack.
+/// The Cortex-M0's 16 KiB hold the receiver (for `set_bin_noise`) or the stored-output stages
+/// (noise tracker and estimators), not both: they take turns in one static.
+#[cfg(core_m0)]
+union M0Arena {
+    rx: core::mem::ManuallyDrop<Result<Rx<64>, ConfigError>>,
+    stored: core::mem::ManuallyDrop<StoredStages<64, 16>>,
+}
+
+#[cfg(core_m0)]
+static mut ARENA: M0Arena = M0Arena {
+    rx: core::mem::ManuallyDrop::new(Err(NOT_BUILT)),
+};
+
+/// The noise tracker (`NoiseTrackerQ15::update` on the stored view, design borrowed from the
+/// flash table; `frame_stats`) and the Doppler, delay-spread and I/Q estimators at size `N`
+/// (`P` pilots) on the stored receiver outputs of the same frame
+/// (`flatbin_firmware::track_stored`, recorded on the host by
+/// `vectors_gen::track::record_case`: frame 0 of case `CASE` is what `run` receives), for the
+/// Cortex-M0, whose RAM does not hold them beside the receiver. They are built in `st`
+/// (the arena the receiver used before).
 #[cfg(core_m0)]
 #[inline(never)]
-fn stored_estimators<const N: usize, const P: usize>(failures: &mut u32)
-where
-    Tables: flatbin_firmware::track_stored::TrackStored<N>,
+fn stored_estimators<const N: usize, const P: usize>(
+    st: &mut StoredStages<N, P>,
+    failures: &mut u32,
+) where
+    Tables: flatbin_firmware::track_stored::TrackStored<N> + TrackDesigns<N>,
 {
     use flatbin_firmware::track_stored::stored;
     use vectors_gen::track::TRACK_CASES;
@@ -385,24 +410,52 @@ where
     ) else {
         return fail("track: no numerology or stored case", N, failures);
     };
-    let mut doppler = DopplerEstimatorQ15::<N, P, H>::new(&nu, DopplerConfigQ15::default());
-    let mut delay = DelaySpreadEstimatorQ15::<N>::new(&nu, delay_config(&nu));
-    let mut iq = IqImageEstimatorQ15::<N>::new(&nu);
-    let (Ok(doppler), Ok(delay), Ok(iq)) = (doppler.as_mut(), delay.as_mut(), iq.as_mut()) else {
+    let Some(modulation) = RX_CASES.get(CASE).map(|c| c.modulation) else {
+        return fail("track: no case", N, failures);
+    };
+    st.noise = NoiseTrackerQ15::new(
+        &nu,
+        <Tables as TrackDesigns<N>>::track_design(),
+        NoiseTrackConfigQ15::default(),
+    );
+    st.doppler = DopplerEstimatorQ15::new(&nu, DopplerConfigQ15::default());
+    st.delay = DelaySpreadEstimatorQ15::new(&nu, delay_config(&nu));
+    st.iq = IqImageEstimatorQ15::new(&nu);
+    let (Ok(tracker), Ok(doppler), Ok(delay), Ok(iq)) = (
+        st.noise.as_mut(),
+        st.doppler.as_mut(),
+        st.delay.as_mut(),
+        st.iq.as_mut(),
+    ) else {
         return fail("track: an estimator was not built", N, failures);
     };
     let mut ok = true;
+    tracker.start_frame();
     for symbol in 0..=MEASURED {
         let Some(s) = stored::<N>(case_pos, 0, symbol) else {
             return fail("track: no stored symbol", N, failures);
         };
         let (bins, exp) = (s.bins, s.bins_exp);
+        let view = s.view();
+        let eq = s.equalized.get(..nu.data_len(symbol)).unwrap_or_default();
         if symbol < MEASURED {
+            ok &= tracker.update(symbol, &view, eq, modulation).is_ok();
             ok &= doppler.update(bins, exp, symbol).is_ok();
             ok &= delay.update(bins, exp, symbol).is_ok();
             ok &= iq.update(bins, exp, symbol).is_ok();
             continue;
         }
+        let mut r = None;
+        let m = measure(&mut || {
+            r = Some(black_box(&mut *tracker).update(
+                black_box(symbol),
+                black_box(&view),
+                black_box(eq),
+                black_box(modulation),
+            ));
+        });
+        report("noise_track_q15_update", N, m, failures);
+        ok &= matches!(r, Some(Ok(())));
         let mut r = None;
         let m = measure(&mut || {
             r = Some(black_box(&mut *doppler).update(black_box(bins), black_box(exp), symbol));
@@ -422,6 +475,10 @@ where
         report("iq_q15_update", N, m, failures);
         ok &= matches!(r, Some(Ok(())));
     }
+    let m = measure(&mut || {
+        black_box(black_box(&*tracker).frame_stats());
+    });
+    report("noise_track_q15_frame_stats", N, m, failures);
     let m = measure(&mut || {
         black_box(black_box(&*doppler).estimate());
     });
@@ -457,17 +514,23 @@ fn main() -> ! {
     }
     #[cfg(core_m0)]
     {
-        // SAFETY: the only reference to the slot, taken once here.
-        unsafe { bin_noise_only::<64>(&mut *addr_of_mut!(RX_64), &mut failures) };
+        // SAFETY: the only reference to the arena's receiver, taken once here and dropped
+        // before the arena is reused.
+        unsafe { bin_noise_only::<64>(&mut *addr_of_mut!(ARENA.rx), &mut failures) };
         ici::<64>(0, &mut failures);
-        stored_estimators::<64, 16>(&mut failures);
-        hprintln!(
-            "trackskip core={} n=64 stage=noise_track receiver={} noise_track={} design={} bytes (beside the receiver, or alone with the design's copy NoiseTrackerQ15::new takes by value: more than the 16 KiB RAM; see track_stored.rs)",
-            CORE,
-            size_of::<Rx<64>>(),
-            size_of::<NoiseTrackerQ15<64>>(),
-            size_of::<flatbin::noise_track_q15::NoiseTrackDesignQ15<64>>()
-        );
+        // SAFETY: the receiver is no longer used (its type needs no drop: `ManuallyDrop`);
+        // the arena now holds the stored-output stages, built in place, and this is the only
+        // reference to them.
+        unsafe {
+            let arena = &mut *addr_of_mut!(ARENA);
+            arena.stored = core::mem::ManuallyDrop::new(StoredStages {
+                noise: Err(NOT_BUILT),
+                doppler: Err(NOT_BUILT),
+                delay: Err(NOT_BUILT),
+                iq: Err(NOT_BUILT),
+            });
+            stored_estimators::<64, 16>(&mut arena.stored, &mut failures);
+        }
         hprintln!(
             "trackskip core={} n=256 stage=receiver-fed bytes={} (ReceiverQ15<256>)",
             CORE,

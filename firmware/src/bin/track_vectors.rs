@@ -19,8 +19,9 @@
 //! runs the receiver with `set_bin_noise` (the noise the design assumes) and the ICI table at
 //! N = 64, and the ICI table at 256: `ReceiverQ15<64>` (6,144 B) with the trackers and the
 //! ~6 KB of stack `ReceiverQ15::new` takes exceeds its 16 KiB (the `trackskip` line gives the
-//! sizes). The M0 checks the Doppler, delay-spread and I/Q estimators at N = 64 without the
-//! receiver, on its stored outputs: `track_stored.rs`. Exit status: the number of failures.
+//! sizes). The M0 checks the noise tracker (design borrowed from flash) and the Doppler,
+//! delay-spread and I/Q estimators at N = 64 without the receiver, on its stored outputs:
+//! `track_stored.rs`. Exit status: the number of failures.
 
 #![no_std]
 #![no_main]
@@ -262,10 +263,10 @@ fn main() -> ! {
     ici_only::<256>(&mut failures);
     #[cfg(core_m0)]
     hprintln!(
-        "trackskip core={} n=64 receiver={} noise_track={} doppler={} delay={} iq={} (bytes; with ReceiverQ15::new's stack beyond 16 KiB)",
+        "trackskip core={} n=64 receiver={} noise_track={} doppler={} delay={} iq={} (bytes; the noise tracker with its design borrowed from flash; with ReceiverQ15::new's stack beyond 16 KiB)",
         CORE,
         size_of::<Rx<64>>(),
-        size_of::<NoiseTrackerQ15<64>>(),
+        size_of::<NoiseTrackerQ15<64, &'static flatbin::noise_track_q15::NoiseTrackDesignQ15<64>>>(),
         size_of::<DopplerEstimatorQ15<64, 16, H>>(),
         size_of::<DelaySpreadEstimatorQ15<64>>(),
         size_of::<IqImageEstimatorQ15<64>>()

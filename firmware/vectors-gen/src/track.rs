@@ -12,6 +12,8 @@
 //! without the noise tracker, with the noise the design assumes), which sets the next frame's
 //! LLR weights, so the LLRs of every symbol are emitted too (as a hash).
 
+use core::borrow::Borrow;
+
 use flatbin::delay_spread_q15::{DelaySpreadConfigQ15, DelaySpreadEstimatorQ15, DelaySpreadQ15};
 use flatbin::doppler::DopplerStatus;
 use flatbin::doppler_q15::{DopplerEstimateQ15, DopplerEstimatorQ15};
@@ -56,9 +58,16 @@ pub fn delay_config(nu: &Numerology) -> DelaySpreadConfigQ15 {
 }
 
 /// The tracking stages a core runs (its RAM decides which are present).
-pub struct Trackers<'a, const N: usize, const P: usize, const H: usize> {
-    /// The noise tracker (`NoiseTrackerQ15<N>` holds its design: about 100·N + 5 KB).
-    pub noise: Option<&'a mut NoiseTrackerQ15<N>>,
+///
+/// `D` is how the noise tracker holds its design: owned (the default; about 100·N + 5 KB with
+/// it) or borrowed, e.g. `&'static NoiseTrackDesignQ15<N>` from a flash table (the tracker's
+/// own state is then about 38·N bytes).
+pub struct Trackers<'a, const N: usize, const P: usize, const H: usize, D = NoiseTrackDesignQ15<N>>
+where
+    D: Borrow<NoiseTrackDesignQ15<N>>,
+{
+    /// The noise tracker.
+    pub noise: Option<&'a mut NoiseTrackerQ15<N, D>>,
     /// The Doppler estimator.
     pub doppler: Option<&'a mut DopplerEstimatorQ15<N, P, H>>,
     /// The delay-spread estimator.
@@ -199,17 +208,18 @@ pub fn ici_grid(table: &IciTableQ15, emit: &mut Emit) {
 /// output. `track_design` gives the estimator MSE per bin for `set_bin_noise` (and the
 /// noise the design assumes when there is no noise tracker). False when a buffer is short,
 /// the case is unknown or the generator fails.
-pub fn run_case<F, const N: usize, const P: usize, const H: usize>(
+pub fn run_case<F, D, const N: usize, const P: usize, const H: usize>(
     case_index: usize,
     nu: &Numerology,
     rx: &mut ReceiverQ15<F, N, RX_K, RX_M>,
     track_design: &NoiseTrackDesignQ15<N>,
-    t: &mut Trackers<'_, N, P, H>,
+    t: &mut Trackers<'_, N, P, H, D>,
     b: &mut Buffers<'_>,
     emit: &mut Emit,
 ) -> bool
 where
     F: OfdmFft<N, Sample = Cq15>,
+    D: Borrow<NoiseTrackDesignQ15<N>>,
 {
     let Some(case) = RX_CASES.get(case_index) else {
         return false;
@@ -312,8 +322,8 @@ where
 
 /// The noise tracker's per-frame records (`frame_stats`, `interfered`) and its per-bin noise
 /// written to `noise`; returns the number of values written (`bin_noise`).
-fn noise_records<const N: usize>(
-    n: &NoiseTrackerQ15<N>,
+fn noise_records<D: Borrow<NoiseTrackDesignQ15<N>>, const N: usize>(
+    n: &NoiseTrackerQ15<N, D>,
     noise: &mut [u64],
     emit: &mut Emit,
 ) -> usize {
@@ -350,8 +360,13 @@ fn bin_noise_records(words: &[u64], emit: &mut Emit) {
 
 /// The per-frame estimate records of the present estimators (`doppler`, `delay`, `iq`) and
 /// the ICI prediction from the Doppler estimate (`ici`; `fd·T` 0 without one).
-fn estimate_records<const N: usize, const P: usize, const H: usize>(
-    t: &mut Trackers<'_, N, P, H>,
+fn estimate_records<
+    D: Borrow<NoiseTrackDesignQ15<N>>,
+    const N: usize,
+    const P: usize,
+    const H: usize,
+>(
+    t: &mut Trackers<'_, N, P, H, D>,
     emit: &mut Emit,
 ) {
     let mut fd_t_q16 = 0u32;
@@ -503,11 +518,16 @@ pub type StoredSource<'s, 'a, const N: usize> =
 /// (frame, symbol, block exponent, tracker error bits as in `symbol`). `noise` takes the
 /// per-bin noise (at least `N`). False when a stored symbol is missing, `noise` is short or
 /// the case is unknown.
-pub fn run_stored<const N: usize, const P: usize, const H: usize>(
+pub fn run_stored<
+    D: Borrow<NoiseTrackDesignQ15<N>>,
+    const N: usize,
+    const P: usize,
+    const H: usize,
+>(
     case_index: usize,
     nu: &Numerology,
     source: &StoredSource<'_, '_, N>,
-    t: &mut Trackers<'_, N, P, H>,
+    t: &mut Trackers<'_, N, P, H, D>,
     noise: &mut [u64],
     emit: &mut Emit,
 ) -> bool {
