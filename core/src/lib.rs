@@ -32,6 +32,8 @@
 //! * [`conv_code`] — the K = 7 (133/171) convolutional code, punctured rates 2/3 and 3/4;
 //!   [`viterbi`] — its soft-decision decoder on i8 LLRs with a fixed-depth sliding traceback.
 //! * [`crc`] — CRC-16 and CRC-32 frame checks.
+//! * [`packet`] — packets over OFDM symbols: CRC-32, code and per-symbol interleaving on the
+//!   way out, de-interleaver → Viterbi → CRC on the way in.
 //!
 //! ## Example: one symbol through transmitter and receiver
 //!
@@ -119,6 +121,7 @@ pub mod noise_track;
 pub mod noise_track_q15;
 pub mod numerology;
 pub mod packed;
+pub mod packet;
 pub mod pilots;
 pub mod preamble;
 pub mod receiver;

@@ -2,9 +2,10 @@
 //! receiver with i8 LLRs, de-interleaver, Viterbi decoder, CRC check — measured by packet
 //! error rate (PER) on a scenario's channel and impairments.
 //!
-//! One packet: `payload_bytes` random bytes, CRC-32 (ISO-HDLC, [`flatbin::crc`]) appended,
-//! encoded at the code rate with 6 tail bits, spread over as many OFDM symbols as it needs;
-//! the last symbol is filled up with random bits the receiver ignores. Each packet is one
+//! One packet ([`flatbin::packet`], the code the firmware runs): `payload_bytes` random bytes,
+//! CRC-32 (ISO-HDLC) appended, encoded at the code rate with 6 tail bits, spread over as many
+//! OFDM symbols as it needs, interleaved per symbol; the last symbol is filled up with zero
+//! bits the receiver skips. Each packet is one
 //! frame for the receiver (its channel estimator starts over; symbol numbering, and so the
 //! pilot pattern, restart at 0). The channel runs on continuously from packet to packet
 //! (time-continuous Rayleigh fading, sum of sinusoids with a Jakes spectrum) and the noise
@@ -15,14 +16,13 @@
 //! chain, LLRs quantised to i8 as the firmware receives them (round(4·L), ±127).
 
 use anyhow::{ensure, Result};
-use flatbin::conv_code::{coded_len, encode, CodeRate};
-use flatbin::crc::{append_crc32_bits, check_crc32_bits, CRC32_BITS};
+use flatbin::conv_code::CodeRate;
 use flatbin::fft::MicroFft;
-use flatbin::interleave::Interleaver;
 use flatbin::noise_track::{NoiseTrackConfig, NoiseTracker};
+use flatbin::packet::{PacketDecoder, PacketFormat, PacketStatus};
 use flatbin::receiver::Receiver;
 use flatbin::transmit::Transmitter;
-use flatbin::viterbi::{Decision, ViterbiDecoder, RECOMMENDED_DEPTH};
+use flatbin::viterbi::RECOMMENDED_DEPTH;
 use flatbin::{Cf32, Modulation, Numerology};
 use rand::RngExt;
 use serde::Serialize;
@@ -177,17 +177,9 @@ fn run<const N: usize>(
     let ns = nu.symbol_len();
     let m = setup.modulation;
     let n0 = n0_for_es_n0_db(setup.es_n0_db);
-    let info_bits = 8 * setup.payload_bytes + CRC32_BITS;
-    let coded = coded_len(info_bits, setup.rate);
-    // Symbols per packet (data bins may differ per symbol under a scattered pattern).
-    let bps = m.bits_per_symbol();
-    let mut symbols = 0u32;
-    let mut capacity = 0usize;
-    while capacity < coded {
-        capacity += nu.data_len(symbols) * bps;
-        symbols += 1;
-        ensure!(symbols < 10_000, "packet does not fit in 10 000 symbols");
-    }
+    let format = PacketFormat::new(nu, m, setup.rate, 8 * setup.payload_bytes)?;
+    let info_bits = format.info_bits();
+    let symbols = format.symbols();
     let taps = match scenario.channel.profile {
         ChannelProfile::Awgn => vec![(0usize, 1.0f64)],
         ChannelProfile::Exponential => {
@@ -206,13 +198,7 @@ fn run<const N: usize>(
         receiver_config(scenario, nu, n0),
     )?);
     let mut noise = Box::new(NoiseTracker::<N>::new(nu, NoiseTrackConfig::default())?);
-    let mut decoder = Box::new(ViterbiDecoder::<RECOMMENDED_DEPTH>::new(
-        setup.rate,
-        Decision::Soft,
-    ));
-    let interleavers: Vec<Interleaver> = (0..symbols)
-        .map(|s| Interleaver::for_symbol(nu, s, m))
-        .collect::<Result<_, _>>()?;
+    let mut decoder = Box::new(PacketDecoder::<RECOMMENDED_DEPTH>::new(format));
     let mut eq = vec![Cf32::default(); N];
     let mut sinr = vec![0.0f32; N];
     let mut llr = vec![0.0f32; N * 8];
@@ -227,33 +213,22 @@ fn run<const N: usize>(
         symbols_per_packet: symbols,
     };
     let mut frame = vec![0u8; info_bits];
-    let mut code = vec![0u8; coded];
-    let mut decoded = vec![0u8; info_bits + 2 * RECOMMENDED_DEPTH + 8];
+    let mut code = vec![0u8; format.coded_bits()];
+    let mut decoded = vec![0u8; info_bits];
+    let mut scratch_bits = vec![0u8; N * 8];
+    let mut scratch_llrs = vec![0i8; N * 8];
     while point.packets < setup.max_packets && point.packet_errors < setup.min_packet_errors {
         // Transmit.
         for b in frame.iter_mut().take(8 * setup.payload_bytes) {
             *b = rng.random::<u8>() & 1;
         }
-        append_crc32_bits(&mut frame)?;
-        let n = encode(&frame, setup.rate, &mut code)?;
-        ensure!(n == coded, "encoder wrote {n} bits, {coded} expected");
+        format.encode(&mut frame, &mut code)?;
         let mut x = Vec::with_capacity(ns * symbols as usize);
-        let mut pos = 0usize;
-        for (sym, il) in (0..symbols).zip(&interleavers) {
-            let len = il.coded_bits();
-            let mut bits: Vec<u8> = (0..len)
-                .map(|i| {
-                    code.get(pos + i)
-                        .copied()
-                        .unwrap_or_else(|| rng.random::<u8>() & 1)
-                })
-                .collect();
-            pos += len;
-            let mut out = vec![0u8; len];
-            il.interleave(&bits, &mut out)?;
-            bits = out;
+        let mut bits = vec![0u8; N * 8];
+        for sym in 0..symbols {
+            let len = format.symbol_bits_out(sym, &code, &mut scratch_bits, &mut bits)?;
             let mut s = vec![Cf32::default(); ns];
-            tx.modulate(m, &bits, sym, &mut s)?;
+            tx.modulate(m, &bits[..len], sym, &mut s)?;
             x.extend_from_slice(&s);
         }
         // Channel and front end.
@@ -267,9 +242,8 @@ fn run<const N: usize>(
         noise.start_frame(1.0);
         rx.reset();
         decoder.reset();
-        let mut written = 0usize;
-        let mut remaining = coded;
-        for (sym, il) in (0..symbols).zip(&interleavers) {
+        let mut crc_ok = None;
+        for sym in 0..symbols {
             let w = &samples[sym as usize * ns..(sym as usize + 1) * ns];
             if setup.weighting == Weighting::Tracked
                 && (noise.frame_stats().symbols > 0 || point.packets > 0)
@@ -290,23 +264,14 @@ fn run<const N: usize>(
                 .iter()
                 .map(|&l| quantise_llr(f64::from(l)))
                 .collect();
-            let mut d = vec![0i8; q.len()];
-            il.deinterleave(&q, &mut d)?;
-            let take = remaining.min(d.len());
-            remaining -= take;
-            written += decoder.decode(&d[..take], &mut decoded[written..])?;
+            if let PacketStatus::Complete { crc_ok: ok } =
+                decoder.push_symbol(sym, &q, &mut scratch_llrs, &mut decoded)?
+            {
+                crc_ok = Some(ok);
+            }
         }
-        written += decoder.finish(&mut decoded[written..])?;
-        ensure!(
-            written == info_bits,
-            "decoded {written} bits, {info_bits} expected"
-        );
-        let e = decoded[..info_bits]
-            .iter()
-            .zip(&frame)
-            .filter(|(a, b)| a != b)
-            .count() as u64;
-        let crc_ok = check_crc32_bits(&decoded[..info_bits])?;
+        let crc_ok = crc_ok.ok_or_else(|| anyhow::anyhow!("packet not complete"))?;
+        let e = decoded.iter().zip(&frame).filter(|(a, b)| a != b).count() as u64;
         point.packets += 1;
         point.bits += info_bits as u64;
         point.bit_errors += e;
