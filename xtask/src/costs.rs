@@ -101,6 +101,21 @@ const HEADER: &str = "\
 #   (src/size_track_probe.rs) minus size_numerology; ici_q15 includes IciTableQ15::new
 #   (configuration, f32: soft float on the M0); set_bin_noise is measured against a firmware
 #   that only builds the receiver.
+# Coding rows (firmware/src/bin/coding_cost.rs), both cores. viterbi_{soft,hard}_r{12,23,34}
+#   (n = 256 information bits, CRC-32 included): one terminated frame through
+#   ViterbiDecoder<96> (traceback depth 96) - decode of all its LLRs in one call, then finish
+#   (256 + 6 trellis steps; 524, 393 and 350 i8 LLRs at rates 1/2, 2/3, 3/4) - on frames
+#   0-5 of vectors_gen::coding::CODING_CASES (random payload, CRC-32, BPSK-like LLRs with
+#   noise, erasures, saturated values and wrong signs; each decodes to the sent bits); the
+#   decoder is built outside the region. `*_per_bit`: the frame row's instructions / 256,
+#   rounded (instructions per decoded information bit; stack and code as the frame row).
+#   conv_encode_r{12,23,34} (n = 256): conv_code::encode of the same frames.
+#   interleave_/deinterleave_{qpsk,qam16} (n = 64, the FFT size): Interleaver::interleave of
+#   symbol 0's coded bits / deinterleave of its i8 LLRs for the N = 64 numerology (41 data
+#   bins: 82 and 164 bits). crc32_bits / crc16_bits (n = 256 bits): the CRC of a 32-byte
+#   payload in bit form (one bit per byte). code_bytes: a firmware with the stage
+#   (src/size_coding_probe.rs: the decoder at every rate and decision, the encoder, the
+#   interleaver both ways, each CRC's bit form) minus size_baseline.
 # Build: opt-level 3, fat LTO, codegen-units 1, panic=abort, Rust toolchain 1.95.0 (pinned);
 #   QEMU 7.2: cortex-m4f = mps2-an386 (-cpu cortex-m4), cortex-m0 = microbit (-cpu cortex-m0).
 core,stage,n,instructions,stack_bytes,code_bytes";

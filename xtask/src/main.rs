@@ -10,16 +10,21 @@
 //!    code run on the host, and prints the Q15 FFT's SQNR against an f64 reference; runs
 //!    `rx_vectors` (the Q15 receiver on deterministic frames) and `sync_vectors` (the integer
 //!    synchronisation stages and the streaming frame receiver on deterministic captures) and
-//!    `track_vectors` (the integer tracking stages on the receiver's frames) and compares
-//!    their outputs bit for bit with the same code run on the host;
-//! 4. links `panic_free` and `track_panic_free` (and `q15_only`), whose panic handler calls an undefined function:
+//!    `track_vectors` (the integer tracking stages on the receiver's frames) and
+//!    `coding_vectors` (encoder, Viterbi decoder, interleaver and CRC on deterministic frames)
+//!    and compares their outputs bit for bit with the same code run on the host;
+//! 4. links `panic_free`, `track_panic_free` and `coding_panic_free` (and `q15_only`), whose
+//!    panic handler calls an undefined function:
 //!    a surviving panic path fails the link; checks that the M0 Q15 FFT build links no soft
 //!    float and that no soft float is reachable from the Q15 receiver's per-symbol code
 //!    (`rx_q15_only`), from the integer synchronisation stages (`sync_q15_only`) nor from the
-//!    integer tracking stages' per-symbol and per-frame code (`track_q15_only`).
+//!    integer tracking stages' per-symbol and per-frame code (`track_q15_only`) nor from the
+//!    coding stage's entry points (`coding_panic_free::per_bit`).
 //!
 //! See `firmware/README.md`.
 
+#[cfg(feature = "q15")]
+mod coding_vectors;
 mod costs;
 #[cfg(test)]
 mod generator_tests;
@@ -188,6 +193,76 @@ pub fn track_stages(core: &Core) -> Vec<(&'static str, &'static [usize])> {
     ]
 }
 
+/// Coding stages (`firmware/src/bin/coding_cost.rs`), in table order, with their `n`: the
+/// Viterbi frames and the encoder at 256 information bits, the interleaver at the FFT size 64,
+/// the CRCs at 256 payload bits. The `_per_bit` rows are derived from the `viterbi_*` frame
+/// rows ([`per_bit_rows`]).
+pub fn coding_stages() -> Vec<(&'static str, &'static [usize])> {
+    if !Q15 {
+        return Vec::new();
+    }
+    const FRAME: &[usize] = &[CODING_FRAME_BITS];
+    vec![
+        ("viterbi_soft_r12", FRAME),
+        ("viterbi_soft_r12_per_bit", FRAME),
+        ("viterbi_soft_r23", FRAME),
+        ("viterbi_soft_r23_per_bit", FRAME),
+        ("viterbi_soft_r34", FRAME),
+        ("viterbi_soft_r34_per_bit", FRAME),
+        ("viterbi_hard_r12", FRAME),
+        ("viterbi_hard_r12_per_bit", FRAME),
+        ("viterbi_hard_r23", FRAME),
+        ("viterbi_hard_r23_per_bit", FRAME),
+        ("viterbi_hard_r34", FRAME),
+        ("viterbi_hard_r34_per_bit", FRAME),
+        ("conv_encode_r12", FRAME),
+        ("conv_encode_r23", FRAME),
+        ("conv_encode_r34", FRAME),
+        ("interleave_qpsk", &[64]),
+        ("deinterleave_qpsk", &[64]),
+        ("interleave_qam16", &[64]),
+        ("deinterleave_qam16", &[64]),
+        ("crc32_bits", &[256]),
+        ("crc16_bits", &[256]),
+    ]
+}
+
+/// Information bits of the frames of the coding cost rows (CRC-32 included).
+const CODING_FRAME_BITS: usize = 256;
+
+/// The `<stage>_per_bit` row of every `viterbi_*` frame row: its instructions divided by the
+/// frame's information bits `n`, rounded to the nearest; stack and code as the frame's.
+fn per_bit_rows(rows: &mut Vec<(String, usize, u64, u64)>) {
+    let derived: Vec<_> = rows
+        .iter()
+        .filter(|(s, n, _, _)| s.starts_with("viterbi_") && !s.ends_with("_per_bit") && *n > 0)
+        .map(|(s, n, ins, stack)| {
+            let n64 = *n as u64;
+            (format!("{s}_per_bit"), *n, (ins + n64 / 2) / n64, *stack)
+        })
+        .collect();
+    rows.extend(derived);
+}
+
+/// The size probe of a coding stage (`firmware/src/size_coding_probe.rs`; measured against
+/// `size_baseline`).
+fn coding_size_probe(stage: &str) -> Option<&'static str> {
+    let probe = if stage.starts_with("viterbi_") {
+        "size_coding_viterbi"
+    } else if stage.starts_with("conv_encode_") {
+        "size_coding_encode"
+    } else if stage.starts_with("interleave_") || stage.starts_with("deinterleave_") {
+        "size_coding_interleave"
+    } else if stage == "crc32_bits" {
+        "size_coding_crc32"
+    } else if stage == "crc16_bits" {
+        "size_coding_crc16"
+    } else {
+        return None;
+    };
+    Some(probe)
+}
+
 /// The size probe of a tracking stage at `n` and the probe it is measured against
 /// (`firmware/src/size_track_probe.rs`).
 fn track_size_probes(stage: &str, n: usize) -> Option<(String, String)> {
@@ -218,6 +293,7 @@ fn expected_stages(core: &Core) -> Vec<(&'static str, &'static [usize])> {
         .chain(rx_stages().into_iter().map(|s| (s, core.rx_sizes)))
         .chain(sync_stages(core))
         .chain(track_stages(core))
+        .chain(coding_stages())
         .collect()
 }
 
@@ -319,6 +395,15 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
             bins.push("track_cost".into());
             bins.push("track_q15_only".into());
             bins.push("track_vectors".into());
+            bins.push("coding_cost".into());
+            bins.push("coding_vectors".into());
+            for (stage, _) in coding_stages() {
+                if let Some(probe) = coding_size_probe(stage) {
+                    if !bins.iter().any(|b| b == probe) {
+                        bins.push(probe.into());
+                    }
+                }
+            }
             if !core.track_stored_sizes.is_empty() {
                 bins.push("track_stored".into());
             }
@@ -353,6 +438,8 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
             reach::check_rx_no_soft_float(&elf("rx_q15_only"), failures)?;
             reach::check_sync_no_soft_float(&elf("sync_q15_only"), failures)?;
             reach::check_track_no_soft_float(&elf("track_q15_only"), failures)?;
+            // Built by the panic-free check above.
+            reach::check_coding_no_soft_float(&elf("coding_panic_free"), failures)?;
         }
 
         section(&format!("{}: instruction counts", core.name));
@@ -361,6 +448,9 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
             runs.extend(run_cost(core, &elf("rx_cost"), failures)?);
             runs.extend(run_cost(core, &elf("sync_cost"), failures)?);
             runs.extend(run_cost(core, &elf("track_cost"), failures)?);
+            let mut coding = run_cost(core, &elf("coding_cost"), failures)?;
+            per_bit_rows(&mut coding);
+            runs.extend(coding);
         }
         check_all_measured(core, &runs, failures);
         // Table order: the stages as listed, then N.
@@ -378,6 +468,8 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
         for (stage, n, instructions, stack_bytes) in runs {
             let code = if let Some((probe, base)) = sync_size_probes(&stage, n) {
                 code_bytes(&elf(&probe))?.saturating_sub(code_bytes(&elf(base))?)
+            } else if let Some(probe) = coding_size_probe(&stage) {
+                code_bytes(&elf(probe))?.saturating_sub(baseline)
             } else if let Some((probe, base)) = track_size_probes(&stage, n) {
                 code_bytes(&elf(&probe))?.saturating_sub(code_bytes(&elf(&base))?)
             } else if stage.starts_with("rx_q15_") {
@@ -432,6 +524,12 @@ fn mcu(update: bool, failures: &mut Failures) -> Result<(), String> {
                 ));
                 track_vectors::check_stored(core, &elf("track_stored"), failures)?;
             }
+            section(&format!(
+                "{}: coding stage (encoder, Viterbi decoder, interleaver, CRC), bit-exact \
+                 against the host",
+                core.name
+            ));
+            coding_vectors::check(core, &elf("coding_vectors"), failures)?;
         }
     }
 

@@ -12,9 +12,10 @@ use crate::Core;
 
 const MARKER: &str = "flatbin_panic_path_reachable";
 
-/// The panic-free binaries: `panic_free` (the core's entry points) and `track_panic_free`
-/// (the integer tracking stages, apart for the Cortex-M0's flash).
-const BINS: [&str; 2] = ["panic_free", "track_panic_free"];
+/// The panic-free binaries: `panic_free` (the core's entry points), `track_panic_free`
+/// (the integer tracking stages, apart for the Cortex-M0's flash) and `coding_panic_free` (the
+/// coding stage: `conv_code`, `viterbi`, `interleave`, `crc`).
+const BINS: [&str; 3] = ["panic_free", "track_panic_free", "coding_panic_free"];
 
 /// Builds each of [`BINS`] for `core`; a link failure on the marker is a failed check.
 pub fn check_panic_free(

@@ -1,5 +1,5 @@
 //! No floating point on the integer paths of the Cortex-M0 build: the Q15 receiver's
-//! per-symbol code and the integer synchronisation stages.
+//! per-symbol code, the integer synchronisation and tracking stages, and the coding stage.
 //!
 //! `firmware/src/bin/rx_q15_only.rs` builds the receiver from its `build.rs` design table in
 //! `per_symbol::<N>` and its `Numerology` in `configure` (`Numerology::new` computes the pilot
@@ -99,8 +99,10 @@ fn operands(i: &Insn) -> Vec<&str> {
 ///   literal pool follows it); every entry is followed. Data words that happen to look like
 ///   code addresses are followed too (conservative).
 /// - `add pc, rX` after `lsls rX, rX, #1` after `ldrb`/`ldrh rX` (a byte or half-word offset
-///   table): every target lies within `2·255` (or `2·65535`) bytes after the jump's PC, so
-///   every function overlapping that range is taken as reached.
+///   table): when the table's base is found and its entries branch inside the jump's own
+///   function, that function only (`own_table_targets`); else every target lies within
+///   `2·255` (or `2·65535`) bytes after the jump's PC, so every function overlapping that
+///   range is taken as reached.
 fn jump_table_targets(
     insns: &[Insn],
     k: usize,
@@ -146,13 +148,16 @@ fn jump_table_targets(
             if operands(load).first() != Some(&reg) {
                 return None;
             }
-            let span = match load.op.as_str() {
-                "ldrb" => 2 * 255,
-                "ldrh" => 2 * 65_535,
+            let (span, size) = match load.op.as_str() {
+                "ldrb" => (2 * 255, 1),
+                "ldrh" => (2 * 65_535, 2),
                 _ => return None,
             };
             // Thumb: PC reads as the instruction's address + 4.
             let (lo, hi) = (i.addr + 4, i.addr + 4 + span);
+            if let Some(own) = own_table_targets(insns, k, words, fs, size) {
+                return Some(own);
+            }
             Some(
                 fs.iter()
                     .enumerate()
@@ -163,6 +168,72 @@ fn jump_table_targets(
         }
         _ => None,
     }
+}
+
+/// The byte at `addr` in the disassembly's `.word` data (little-endian), if any.
+fn byte_at(words: &[(u64, u64)], addr: u64) -> Option<u64> {
+    let base = addr & !3;
+    let i = words.partition_point(|&(a, _)| a < base);
+    let &(a, v) = words.get(i)?;
+    (a == base).then_some((v >> (8 * (addr & 3))) & 0xff)
+}
+
+/// The offset table of the `add pc, rX` jump `insns[k]` (`size`-byte entries) read from the
+/// disassembly's data, when its base is found — `adr rA, #imm` before `ldrb/ldrh rX, [rA, rB]`,
+/// or `add rA, pc` just before `ldrb/ldrh rX, [rA, #off]` — and its first entry branches
+/// inside the function holding the jump: then the entries are read until the first one that
+/// branches outside that function (the table's end; a compiler's switch table branches within
+/// its own function), and the functions they reach are returned. None otherwise (the caller
+/// then takes the whole span the entry size allows).
+fn own_table_targets(
+    insns: &[Insn],
+    k: usize,
+    words: &[(u64, u64)],
+    fs: &[Function],
+    size: u64,
+) -> Option<Vec<usize>> {
+    let jump = insns.get(k)?;
+    let from = containing(fs, jump.addr)?;
+    let load = insns.get(k.checked_sub(2)?)?;
+    let ops = operands(load);
+    let base_reg = ops.get(1)?.trim_start_matches('[');
+    let index = ops.get(2)?.trim_end_matches(']');
+    let base = if let Some(off) = index.strip_prefix('#') {
+        // `add rA, pc` right before the load: rA = index·size + PC.
+        let add = insns.get(k.checked_sub(3)?)?;
+        if add.op != "add" || operands(add) != [base_reg, "pc"] {
+            return None;
+        }
+        add.addr + 4 + off.parse::<u64>().ok()?
+    } else {
+        let window = insns.get(k.saturating_sub(8)..k.checked_sub(2)?)?;
+        let adr = window
+            .iter()
+            .rev()
+            .find(|a| a.op == "adr" && operands(a).first() == Some(&base_reg))?;
+        let imm = operands(adr)
+            .get(1)?
+            .strip_prefix('#')?
+            .parse::<u64>()
+            .ok()?;
+        ((adr.addr + 4) & !3) + imm
+    };
+    let mut entry = 0u64;
+    loop {
+        let at = base + entry * size;
+        let mut v = byte_at(words, at);
+        if size == 2 {
+            v = v.zip(byte_at(words, at + 1)).map(|(lo, hi)| lo | (hi << 8));
+        }
+        let inside = v
+            .map(|v| jump.addr + 4 + 2 * v)
+            .is_some_and(|t| containing(fs, t) == Some(from));
+        if !inside {
+            break;
+        }
+        entry += 1;
+    }
+    (entry > 0).then(|| vec![from])
 }
 
 /// The table address of `mov pc, rY` (`insns[k]`) when, within the 6 instructions before it,
@@ -249,6 +320,18 @@ pub fn check_track_no_soft_float(elf: &Path, failures: &mut Failures) -> Result<
 }
 
 /// No soft float reachable from the functions whose demangled name contains `entry`.
+/// Checks `coding_panic_free` (Cortex-M0): no soft float reachable from `per_bit` (every
+/// entry point of `conv_code`, `viterbi`, `interleave` and `crc`).
+pub fn check_coding_no_soft_float(elf: &Path, failures: &mut Failures) -> Result<(), String> {
+    check_no_soft_float_from(
+        elf,
+        "coding_panic_free (Cortex-M0)",
+        "coding_panic_free::per_bit",
+        "the coding stage (encoder, Viterbi decoder, interleaver, CRC)",
+        failures,
+    )
+}
+
 fn check_no_soft_float_from(
     elf: &Path,
     label: &str,

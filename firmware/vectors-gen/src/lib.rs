@@ -14,6 +14,7 @@
 #![no_std]
 #![deny(missing_docs)]
 
+pub mod coding;
 pub mod rx;
 pub mod sync;
 pub mod track;

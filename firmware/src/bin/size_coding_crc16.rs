@@ -1,0 +1,6 @@
+//! Size probe `size_coding_crc16`: see `src/size_coding_probe.rs`.
+
+#![no_std]
+#![no_main]
+
+include!("../size_coding_probe.rs");
