@@ -1,5 +1,6 @@
-//! Panic-free link check of the coding stage (`conv_code`, `viterbi`, `interleave`, `crc`), as
-//! `panic_free.rs`: every public entry point of the four modules is called with `black_box`
+//! Panic-free link check of the coding stage (`conv_code`, `viterbi`, `interleave`, `crc`,
+//! `packet`), as
+//! `panic_free.rs`: every public entry point of the five modules is called with `black_box`
 //! inputs, for every code rate and both decision modes, and the panic handler calls
 //! `flatbin_panic_path_reachable`, which is defined nowhere, so a surviving panic path fails
 //! the link (`--features locate-panics` builds a diagnostic variant that links).
@@ -21,6 +22,7 @@ use cortex_m_rt::entry;
 use flatbin::conv_code::{self, CodeRate, ConvEncoder, Depuncturer};
 use flatbin::crc::{self, Crc16, Crc32};
 use flatbin::interleave::Interleaver;
+use flatbin::packet::{PacketDecoder, PacketFormat};
 use flatbin::viterbi::{Decision, ViterbiDecoder, RECOMMENDED_DEPTH};
 use flatbin::{Modulation, Numerology};
 use flatbin_firmware::exit;
@@ -63,6 +65,7 @@ static mut SOFT: [f32; 256] = [0.0; 256];
 static mut SOFT_OUT: [f32; 256] = [0.0; 256];
 static mut DECODER: Option<ViterbiDecoder<RECOMMENDED_DEPTH>> = None;
 static mut SMALL: Option<ViterbiDecoder<8>> = None;
+static mut PACKET: Option<PacketDecoder<RECOMMENDED_DEPTH>> = None;
 
 /// One length from the optimiser's point of view: anything up to `max`.
 fn len(max: usize) -> usize {
@@ -181,6 +184,37 @@ fn per_bit(nu: &Numerology, rate: CodeRate, decision: Decision) {
     sink(crc::append_crc32_bits(black_box(&mut info[..])));
     sink(crc::check_crc16_bits(black_box(&info[..])));
     sink(crc::check_crc32_bits(black_box(&info[..])));
+
+    // packet (integer only: the format from the numerology's data bins).
+    // SAFETY: the only reference to the decoder slot, taken once per call, not kept.
+    let slot = unsafe { &mut *addr_of_mut!(PACKET) };
+    for m in [Modulation::Qpsk, Modulation::Qam16] {
+        let Ok(f) = PacketFormat::new(nu, black_box(m), rate, black_box(len(512))) else {
+            continue;
+        };
+        sink(f.modulation());
+        sink(f.rate());
+        sink(f.payload_bits());
+        sink(f.coded_bits());
+        sink(f.symbols());
+        sink(f.symbol_bits(black_box(1)));
+        let k = len(BITS);
+        let packet = info.get_mut(..k).unwrap_or_default();
+        sink(f.encode(black_box(packet), black_box(&mut coded[..])));
+        let (half_a, half_b) = out.split_at_mut(BITS / 2);
+        sink(f.symbol_bits_out(black_box(0), black_box(&coded[..]), half_a, half_b));
+        let dec = slot.insert(PacketDecoder::new(f));
+        sink(dec.format());
+        sink(dec.next_symbol());
+        let (la, lb) = llrs_out.split_at_mut(BITS / 2);
+        for (d, s) in la.iter_mut().zip(black_box(&llrs[..])) {
+            *d = *s;
+        }
+        for s in 0..black_box(f.symbols()) {
+            sink(dec.push_symbol(black_box(s), &la[..], &mut lb[..], black_box(&mut info[..])));
+        }
+        dec.reset();
+    }
 }
 
 #[entry]
