@@ -85,12 +85,67 @@ impl DigitalGain {
     /// Applies the gain to `x` into `out` (same length); returns how many I or Q components
     /// saturated.
     pub fn apply(&self, x: &[Cq15], out: &mut [Cq15]) -> usize {
+        // Fast paths in 32 bits (the same rounding and saturation as the general form below,
+        // which they must equal bit for bit): |v·mant| ≤ 2^30 for a mantissa in [0, 2^15].
+        let s = 15i32.saturating_sub(self.shift);
+        if (0..=1 << 15).contains(&self.mant) {
+            if (1..=30).contains(&s) {
+                return self.apply_shift_right(x, out, s as u32);
+            }
+            if (-15..=0).contains(&s) {
+                return self.apply_shift_left(x, out, (-s) as u32);
+            }
+        }
         let mut clipped = 0usize;
         let mut one = |v: i16| -> i16 {
             let p = shift_round(i64::from(v) * i64::from(self.mant), 15 - self.shift);
             let s = sat16_64(p);
             clipped += usize::from(i64::from(s) != p);
             s
+        };
+        for (o, v) in out.iter_mut().zip(x) {
+            *o = Cq15::new(one(v.re), one(v.im));
+        }
+        clipped
+    }
+
+    /// `round(v·mant·2^−s)` (half away from zero), saturated, for `s` in `1..=30` and a
+    /// mantissa in `[0, 2^15]`: the magnitude `|v·mant| + 2^(s−1)` stays below 2^31.
+    fn apply_shift_right(&self, x: &[Cq15], out: &mut [Cq15], s: u32) -> usize {
+        let mant = self.mant as u32;
+        let half = 1u32 << (s - 1);
+        let mut clipped = 0usize;
+        let mut one = |v: i16| -> i16 {
+            let mag = (u32::from(v.unsigned_abs()) * mant + half) >> s;
+            let r = if v < 0 { -(mag as i32) } else { mag as i32 };
+            let c = r.clamp(i32::from(i16::MIN), i32::from(i16::MAX));
+            clipped += usize::from(c != r);
+            c as i16
+        };
+        for (o, v) in out.iter_mut().zip(x) {
+            *o = Cq15::new(one(v.re), one(v.im));
+        }
+        clipped
+    }
+
+    /// `v·mant·2^l`, saturated, for `l` in `0..=15` and a mantissa in `[0, 2^15]`: saturation
+    /// is decided on `v·mant` (≤ 2^30 in magnitude) against `±2^15 >> l` before shifting.
+    fn apply_shift_left(&self, x: &[Cq15], out: &mut [Cq15], l: u32) -> usize {
+        let mant = self.mant;
+        let hi = i32::from(i16::MAX) >> l;
+        let lo = i32::from(i16::MIN) >> l; // exact: −2^15 is a power of two
+        let mut clipped = 0usize;
+        let mut one = |v: i16| -> i16 {
+            let p = i32::from(v) * mant;
+            if p > hi {
+                clipped += 1;
+                i16::MAX
+            } else if p < lo {
+                clipped += 1;
+                i16::MIN
+            } else {
+                (p << l) as i16
+            }
         };
         for (o, v) in out.iter_mut().zip(x) {
             *o = Cq15::new(one(v.re), one(v.im));
@@ -951,5 +1006,54 @@ fn axis_llr_i8(x12: i64, inv_a12: i64, a2_20: i64, w: Scaled, out: &mut [i8]) {
         // |t| < 2^27 and wm ≤ 2^15: the product fits i64.
         let v = shift_round(t * wm, 12 - we);
         *o = v.clamp(-127, 127) as i8;
+    }
+}
+
+#[cfg(test)]
+mod tests {
+    use super::*;
+
+    /// The gain's definition, written out in i128: `v·mant·2^(shift−15)` rounded half away
+    /// from zero, saturated to i16 (common practice for fixed-point gains).
+    fn reference(v: i16, mant: i32, shift: i32) -> (i16, bool) {
+        let p = i128::from(v) * i128::from(mant);
+        let e = shift - 15;
+        let r = if e >= 0 {
+            p << e.min(100)
+        } else {
+            let s = (-e).min(120) as u32;
+            let half = 1i128 << (s - 1);
+            if p >= 0 {
+                (p + half) >> s
+            } else {
+                -((-p + half) >> s)
+            }
+        };
+        let c = r.clamp(i128::from(i16::MIN), i128::from(i16::MAX));
+        (c as i16, c != r)
+    }
+
+    #[test]
+    fn digital_gain_fast_paths_equal_the_definition() {
+        let all: [Cq15; 32768] = core::array::from_fn(|i| {
+            let a = (2 * i) as i32 - 32768;
+            Cq15::new(a as i16, (a + 1) as i16)
+        });
+        let mut out = [Cq15::ZERO; 32768];
+        for mant in [0, 1, 3, 16_384, 23_170, 32_767, 32_768] {
+            for shift in -20..=40 {
+                let g = DigitalGain { mant, shift };
+                let clipped = g.apply(&all, &mut out);
+                let mut want_clipped = 0;
+                for (o, v) in out.iter().zip(&all) {
+                    for (got, x) in [(o.re, v.re), (o.im, v.im)] {
+                        let (w, c) = reference(x, mant, shift);
+                        assert_eq!(got, w, "v {x} mant {mant} shift {shift}");
+                        want_clipped += usize::from(c);
+                    }
+                }
+                assert_eq!(clipped, want_clipped, "mant {mant} shift {shift}");
+            }
+        }
     }
 }
