@@ -964,48 +964,67 @@ fn llr_i8(m: Modulation, x: Cq15, w: Scaled, out: &mut [i8]) {
 
 fn axis_llr_i8(x12: i64, inv_a12: i64, a2_20: i64, w: Scaled, out: &mut [i8]) {
     let m = out.len();
-    if m == 0 {
+    if m == 0 || m > 4 {
         return;
     }
-    let levels = 1i64 << m;
+    // Ranges (32-bit arithmetic below): |x12| ≤ 2^15 (a Q3.12 i16), 1/a < 2^16 in Q12, so
+    // |u| < 2^19 in Q12; levels are odd integers |l| ≤ 15, `level(i)` < 2^16 in Q12.
+    let x12 = x12.clamp(-(1 << 15), 1 << 15) as i32;
+    let inv_a12 = inv_a12.clamp(0, (1 << 16) - 1) as i32;
+    let levels = 1i32 << m;
     let top = levels - 1;
-    // u = x/a in Q12.
-    let u = shift_round(x12 * inv_a12, 12);
-    let level = |i: i64| (2 * i - top) << 12;
-    let nearest = shift_round(u + (top << 12), 13).clamp(0, top);
+    // u = x/a in Q12 (|x·(1/a)| < 2^31).
+    let u = shift_round32(x12 * inv_a12, 12);
+    let level = |i: i32| (2 * i - top) << 12;
+    let nearest = shift_round32(u + (top << 12), 13).clamp(0, top);
     // Weight W = 4·w·a² = 4·mant·a2·2^(exp − 15 − 20).
     let wm = shift_round(i64::from(w.mant) * a2_20, 20); // ≤ 2^15
     let we = w.exp - 15 + 2; // ×4 (I8_LSB_PER_LLR)
     debug_assert_eq!(I8_LSB_PER_LLR, 4.0);
+    let ln = 2 * nearest - top;
     for (j, o) in out.iter_mut().enumerate() {
-        let block = 1i64 << (m - 1 - j);
+        let block = 1i32 << (m - 1 - j);
         let run = (nearest + block) >> (m - j);
         let lo = (2 * block * run - block).max(0);
         let hi = (2 * block * run + block - 1).min(levels - 1);
-        // The other bit value's nearest level: just below `lo` or just above `hi`.
-        let mut best: Option<(i64, i64)> = None; // (distance², level)
-        for cand in [lo - 1, hi + 1] {
-            if (0..levels).contains(&cand) {
-                let e = u - level(cand);
-                let d2 = e * e;
-                if best.is_none_or(|(bd, _)| d2 < bd) {
-                    best = Some((d2, cand));
+        // The other bit value's nearest level: just below `lo` or just above `hi` (the
+        // closer one; the lower on a tie, as |e| compares like e²).
+        let below = (lo >= 1).then(|| (u - level(lo - 1)).unsigned_abs());
+        let above = (hi + 1 < levels).then(|| (u - level(hi + 1)).unsigned_abs());
+        let other = match (below, above) {
+            (Some(b), Some(a)) => {
+                if a < b {
+                    hi + 1
+                } else {
+                    lo - 1
                 }
             }
-        }
-        let Some((_, other)) = best else {
-            *o = 0;
-            continue;
+            (Some(_), None) => lo - 1,
+            (None, Some(_)) => hi + 1,
+            (None, None) => {
+                *o = 0;
+                continue;
+            }
         };
-        // d_other − d_nearest = (l_n − l_o)(2u − l_n − l_o), Q12 (levels are integers).
-        let ln = 2 * nearest - top;
+        // d_other − d_nearest = (l_n − l_o)(2u − l_n − l_o), Q12 (levels are integers);
+        // |l_n − l_o| ≤ 30 and |2u − …| < 2^21: |t| < 2^26.
         let lo_v = 2 * other - top;
         let t = (ln - lo_v) * (2 * u - ((ln + lo_v) << 12)); // Q12
         let t = if run & 1 == 0 { t } else { -t };
-        // L8 = t·2^-12 · wm · 2^we.
-        // |t| < 2^27 and wm ≤ 2^15: the product fits i64.
-        let v = shift_round(t * wm, 12 - we);
+        // L8 = t·2^-12 · wm · 2^we; |t| < 2^26 and wm ≤ 2^15: the product fits i64.
+        let v = shift_round(i64::from(t) * wm, 12 - we);
         *o = v.clamp(-127, 127) as i8;
+    }
+}
+
+/// [`shift_round`] for 32-bit values and a shift in `1..=31` (half away from zero).
+#[inline]
+fn shift_round32(v: i32, s: u32) -> i32 {
+    let half = 1i32 << (s - 1);
+    if v >= 0 {
+        (v + half) >> s
+    } else {
+        -((-v + half) >> s)
     }
 }
 
@@ -1031,6 +1050,69 @@ mod tests {
         };
         let c = r.clamp(i128::from(i16::MIN), i128::from(i16::MAX));
         (c as i16, c != r)
+    }
+
+    /// The exact max-log axis LLR in i64 throughout (the first integer form of this
+    /// demapper, kept as the reference for the 32-bit one).
+    fn axis_llr_i8_wide(x12: i64, inv_a12: i64, a2_20: i64, w: Scaled, out: &mut [i8]) {
+        let m = out.len();
+        let levels = 1i64 << m;
+        let top = levels - 1;
+        let u = shift_round(x12 * inv_a12, 12);
+        let level = |i: i64| (2 * i - top) << 12;
+        let nearest = shift_round(u + (top << 12), 13).clamp(0, top);
+        let wm = shift_round(i64::from(w.mant) * a2_20, 20);
+        let we = w.exp - 15 + 2;
+        for (j, o) in out.iter_mut().enumerate() {
+            let block = 1i64 << (m - 1 - j);
+            let run = (nearest + block) >> (m - j);
+            let lo = (2 * block * run - block).max(0);
+            let hi = (2 * block * run + block - 1).min(levels - 1);
+            let mut best: Option<(i64, i64)> = None;
+            for cand in [lo - 1, hi + 1] {
+                if (0..levels).contains(&cand) {
+                    let e = u - level(cand);
+                    let d2 = e * e;
+                    if best.is_none_or(|(bd, _)| d2 < bd) {
+                        best = Some((d2, cand));
+                    }
+                }
+            }
+            let Some((_, other)) = best else {
+                *o = 0;
+                continue;
+            };
+            let ln = 2 * nearest - top;
+            let lo_v = 2 * other - top;
+            let t = (ln - lo_v) * (2 * u - ((ln + lo_v) << 12));
+            let t = if run & 1 == 0 { t } else { -t };
+            let v = shift_round(t * wm, 12 - we);
+            *o = v.clamp(-127, 127) as i8;
+        }
+    }
+
+    #[test]
+    fn axis_llr_32_bit_form_equals_the_wide_form() {
+        // Every i16 input, every modulation, weights across the receiver's range.
+        for m in Modulation::ALL {
+            let k = m.bits_per_axis();
+            let (inv_a, a2) = axis_consts(m);
+            for (mant, exp) in [
+                (16_384, -10),
+                (23_170, 0),
+                (32_767, 5),
+                (20_000, 12),
+                (0, 0),
+            ] {
+                let w = Scaled { mant, exp };
+                for x in (i16::MIN..=i16::MAX).step_by(3) {
+                    let (mut a, mut b) = ([0i8; 4], [0i8; 4]);
+                    axis_llr_i8(i64::from(x), inv_a, a2, w, &mut a[..k]);
+                    axis_llr_i8_wide(i64::from(x), inv_a, a2, w, &mut b[..k]);
+                    assert_eq!(a, b, "{m:?} x {x} w {mant}·2^{exp}");
+                }
+            }
+        }
     }
 
     #[test]
