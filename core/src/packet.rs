@@ -205,6 +205,8 @@ pub struct PacketDecoder<const D: usize> {
     format: PacketFormat,
     viterbi: ViterbiDecoder<D>,
     next_symbol: u32,
+    /// Coded bits of the packet taken so far (the next symbol's offset into the packet).
+    consumed: usize,
     written: usize,
 }
 
@@ -215,6 +217,7 @@ impl<const D: usize> PacketDecoder<D> {
             format,
             viterbi: ViterbiDecoder::new(format.rate, Decision::Soft),
             next_symbol: 0,
+            consumed: 0,
             written: 0,
         }
     }
@@ -228,6 +231,7 @@ impl<const D: usize> PacketDecoder<D> {
     pub fn reset(&mut self) {
         self.viterbi.reset();
         self.next_symbol = 0;
+        self.consumed = 0;
         self.written = 0;
     }
 
@@ -272,14 +276,14 @@ impl<const D: usize> PacketDecoder<D> {
         };
         let il = self.format.interleaver(symbol)?;
         il.deinterleave(src, dst)?;
-        let o = self.format.offset(symbol);
-        let take = self.format.coded_bits.saturating_sub(o).min(n);
+        let take = self.format.coded_bits.saturating_sub(self.consumed).min(n);
         let out = packet.get_mut(self.written..).unwrap_or_default();
         // The decoder never writes past the packet: it holds back 2·D steps and the tail.
         let w = self
             .viterbi
             .decode(dst.get(..take).unwrap_or_default(), out)?;
         self.written += w;
+        self.consumed += take;
         self.next_symbol += 1;
         if self.next_symbol < self.format.symbols {
             return Ok(PacketStatus::Pending);
@@ -290,6 +294,7 @@ impl<const D: usize> PacketDecoder<D> {
         let complete = self.written == info;
         let crc_ok = complete && check_crc32_bits(packet.get(..info).unwrap_or_default())?;
         self.next_symbol = 0;
+        self.consumed = 0;
         self.written = 0;
         Ok(PacketStatus::Complete { crc_ok })
     }

@@ -27,7 +27,6 @@ use flatbin::{Cf32, Modulation, Numerology};
 use rand::RngExt;
 use serde::Serialize;
 
-use crate::channel::profile::{DelayProfile, Quantisation};
 use crate::channel::sos::FadingParams;
 use crate::channel::tdl::{Tdl, Variation};
 use crate::coded_link::quantise_llr;
@@ -36,7 +35,7 @@ use crate::fading_link::{RX_HISTORY, RX_TAPS};
 use crate::noise::n0_for_es_n0_db;
 use crate::rng::stream_rng;
 use crate::rx_chain::RxChain;
-use crate::scenario::{ChannelProfile, Scenario};
+use crate::scenario::Scenario;
 
 /// Payload of a packet when nothing else is said, bytes (before the 4-byte CRC).
 pub const DEFAULT_PAYLOAD_BYTES: usize = 32;
@@ -180,13 +179,7 @@ fn run<const N: usize>(
     let format = PacketFormat::new(nu, m, setup.rate, 8 * setup.payload_bytes)?;
     let info_bits = format.info_bits();
     let symbols = format.symbols();
-    let taps = match scenario.channel.profile {
-        ChannelProfile::Awgn => vec![(0usize, 1.0f64)],
-        ChannelProfile::Exponential => {
-            DelayProfile::exponential(scenario.channel.rms_delay_spread_s, fs)?
-                .to_sample_taps(fs, Quantisation::Nearest)
-        }
-    };
+    let taps = crate::link_survey::sample_taps(scenario)?;
     let mut rng = stream_rng(scenario.seed ^ 0xC0DE_0000, stream);
     let params = FadingParams::rayleigh(scenario.max_doppler_hz(), fs, N);
     let mut line = Tdl::new(&taps, &params, Variation::Continuous, &mut rng);
@@ -217,6 +210,7 @@ fn run<const N: usize>(
     let mut decoded = vec![0u8; info_bits];
     let mut scratch_bits = vec![0u8; N * 8];
     let mut scratch_llrs = vec![0i8; N * 8];
+    let mut bits = vec![0u8; N * 8];
     while point.packets < setup.max_packets && point.packet_errors < setup.min_packet_errors {
         // Transmit.
         for b in frame.iter_mut().take(8 * setup.payload_bytes) {
@@ -224,7 +218,6 @@ fn run<const N: usize>(
         }
         format.encode(&mut frame, &mut code)?;
         let mut x = Vec::with_capacity(ns * symbols as usize);
-        let mut bits = vec![0u8; N * 8];
         for sym in 0..symbols {
             let len = format.symbol_bits_out(sym, &code, &mut scratch_bits, &mut bits)?;
             let mut s = vec![Cf32::default(); ns];

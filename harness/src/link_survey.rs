@@ -69,6 +69,19 @@ pub struct SurveyRow {
     pub note: String,
 }
 
+/// The scenario's delay profile on the sampling grid, `(delay in samples, power)`: one tap
+/// for AWGN, the exponential profile otherwise.
+pub fn sample_taps(scenario: &Scenario) -> Result<Vec<(usize, f64)>> {
+    let fs = scenario.band.sample_rate_hz;
+    Ok(match scenario.channel.profile {
+        ChannelProfile::Awgn => vec![(0usize, 1.0f64)],
+        ChannelProfile::Exponential => {
+            DelayProfile::exponential(scenario.channel.rms_delay_spread_s, fs)?
+                .to_sample_taps(fs, Quantisation::Nearest)
+        }
+    })
+}
+
 /// Runs `frames` frames of the scenario at `es_n0_db` and reports.
 pub fn survey(
     scenario: &Scenario,
@@ -96,13 +109,7 @@ fn run<const N: usize>(
     let symbols = u32::try_from(scenario.link.symbols_per_frame)?;
     let n0 = n0_for_es_n0_db(es_n0_db);
     let m = Modulation::Qpsk;
-    let taps = match scenario.channel.profile {
-        ChannelProfile::Awgn => vec![(0usize, 1.0f64)],
-        ChannelProfile::Exponential => {
-            DelayProfile::exponential(scenario.channel.rms_delay_spread_s, fs)?
-                .to_sample_taps(fs, Quantisation::Nearest)
-        }
-    };
+    let taps = sample_taps(scenario)?;
     let doppler_hz = scenario.max_doppler_hz();
     let mut rng = stream_rng(scenario.seed, STREAM_SURVEY);
     let params = FadingParams::rayleigh(doppler_hz, fs, N);
